@@ -1,0 +1,306 @@
+"""TOML sweep definitions: parsed, validated once, and handed on as frozen objects.
+
+Every check on user input happens here, so the rest of the pipeline can trust what it gets.
+Errors name the file, the key path, the value and what would be valid.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+
+from sweep.catalog import Body, catalog, resolve_body
+from sweep.errors import CatalogError, ConfigError
+
+__all__ = [
+    "DEMO_CONFIG",
+    "SweepConfig",
+    "load_config",
+    "parse_config",
+]
+
+DEMO_CONFIG = "data/demo.toml"  # packaged with sweep, run by `capsweep run` with no argument
+_DAY = 86400.0  # s
+
+
+class _Model(BaseModel):
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
+
+
+class AxisRange(_Model):
+    """An evenly spaced axis: ``{start, stop, num, spacing}``."""
+
+    start: float
+    stop: float
+    num: Annotated[int, Field(gt=0)]
+    spacing: Literal["linear", "log"] = "linear"
+
+
+class Grid(_Model):
+    """The swept axes, in the order they become cube dimensions."""
+
+    bodies: Annotated[list[str], Field(min_length=1)]
+    v_inf: list[float] | AxisRange  # km/s
+    target_altitude: list[float] | AxisRange  # km
+    periapsis_altitude: list[float] | AxisRange  # km
+
+    @field_validator("v_inf", "target_altitude", "periapsis_altitude", mode="before")
+    @classmethod
+    def _axis_shape(cls, value: Any) -> Any:
+        if isinstance(value, list):
+            if not value:
+                raise ValueError("an axis needs at least one value")
+            return value
+        if isinstance(value, dict):
+            return value
+        raise ValueError("an axis is a list of numbers or a table {start, stop, num, spacing}")
+
+
+class Spacecraft(_Model):
+    """Engine and mass figures for propellant estimates."""
+
+    specific_impulse: Annotated[float, Field(gt=0)]  # s
+    arrival_mass: Annotated[float, Field(gt=0)]  # kg
+
+
+class ThreeBurn(_Model):
+    """Bounds on the three-burn intermediate apoapsis."""
+
+    # Fraction of min(Hill radius, sphere of influence). Shen and Tremaine (2008, AJ 136;
+    # arXiv:0806.2882) find prograde orbits stay bound out to about half the Hill radius;
+    # applied here to the smaller of the two radii, which keeps it conservative.
+    apoapsis_fraction: Annotated[float, Field(gt=0, le=1)] = 0.5
+    max_time_to_orbit: Annotated[float, Field(gt=0)] | None = None  # days
+
+
+class Crossover(_Model):
+    """Arrival-speed range searched for the equal-cost speed (km/s)."""
+
+    v_inf_min: Annotated[float, Field(ge=0)] = 0.0
+    v_inf_max: Annotated[float, Field(gt=0)] = 30.0
+
+
+class BodyFields(_Model):
+    """A body defined, or catalog fields overridden, in the config (catalog units)."""
+
+    gm: Annotated[float, Field(gt=0)] | None = None  # km3 s-2
+    mean_radius: Annotated[float, Field(gt=0)] | None = None  # km
+    equatorial_radius: Annotated[float, Field(gt=0)] | None = None  # km
+    safe_periapsis_altitude: Annotated[float, Field(ge=0)] | None = None  # km
+    parent: str | None = None
+    semi_major_axis: Annotated[float, Field(gt=0)] | None = None  # km
+
+
+class ConfigFile(_Model):
+    """The whole TOML document."""
+
+    name: Annotated[str, Field(min_length=1)]
+    description: str = ""
+    grid: Grid
+    spacecraft: Spacecraft
+    three_burn: ThreeBurn = ThreeBurn()
+    crossover: Crossover = Crossover()
+    bodies: dict[str, BodyFields] = {}
+
+
+@dataclass(frozen=True)
+class SweepConfig:
+    """A validated sweep: resolved bodies and ascending axis values, in config units."""
+
+    name: str
+    description: str
+    bodies: tuple[Body, ...]
+    v_inf: np.ndarray  # km/s
+    target_altitude: np.ndarray  # km
+    periapsis_altitude: np.ndarray  # km
+    specific_impulse: float  # s
+    arrival_mass: float  # kg
+    apoapsis_fraction: float  # 1
+    max_time_to_orbit: float | None  # s
+    crossover_range: tuple[float, float]  # km/s
+    text: str  # the TOML exactly as read
+    path: str  # where it was read from
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        """Grid shape (body, v_inf, target_altitude, periapsis_altitude)."""
+        return (len(self.bodies), self.v_inf.size, self.target_altitude.size, self.periapsis_altitude.size)
+
+
+def _key_path(loc: tuple) -> str:
+    return ".".join(str(part) for part in loc if not str(part).startswith(("list[", "AxisRange")))
+
+
+def _fields_at(loc: tuple) -> list[str]:
+    """Valid keys of the table at ``loc`` (the path of an unknown key, without the key)."""
+    model: Any = ConfigFile
+    for part in loc:
+        if isinstance(part, int) or model is None:
+            return []
+        if model is ConfigFile and part == "bodies":
+            model = dict
+            continue
+        if model is dict:
+            model = BodyFields
+            continue
+        annotation = model.model_fields[part].annotation if part in model.model_fields else None
+        candidates = [annotation, *getattr(annotation, "__args__", ())]
+        model = next((c for c in candidates if isinstance(c, type) and issubclass(c, BaseModel)), None)
+    return sorted(model.model_fields) if isinstance(model, type) and issubclass(model, BaseModel) else []
+
+
+def _describe(error: dict, path: str) -> str:
+    loc = tuple(error["loc"])
+    key = _key_path(loc)
+    if error["type"] == "extra_forbidden":
+        valid = _fields_at(tuple(p for p in loc[:-1] if not str(p).startswith(("list[", "AxisRange"))))
+        close = difflib.get_close_matches(str(loc[-1]), valid, n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        return f"{path}: unknown key {key!r}{hint} (valid keys here: {', '.join(valid)})"
+    if error["type"] == "missing":
+        return f"{path}: missing required key {key!r}"
+    message = error["msg"].removeprefix("Value error, ")
+    return f"{path}: {key}: {message} (got {error.get('input')!r})"
+
+
+def _pick_error(errors: list[dict]) -> dict:
+    """Choose the most telling of pydantic's errors (a union reports one per member)."""
+    for error in errors:
+        if error["type"] in ("extra_forbidden", "missing") and not any(
+            str(p).startswith("list[") for p in error["loc"]
+        ):
+            return error
+    for error in errors:
+        if not any(str(p).startswith("list[") for p in error["loc"]):
+            return error
+    return errors[0]
+
+
+def _axis_values(axis: list[float] | AxisRange, key: str, path: str) -> np.ndarray:
+    if isinstance(axis, AxisRange):
+        if not (math.isfinite(axis.start) and math.isfinite(axis.stop)):
+            raise ConfigError(f"{path}: {key}: start and stop must be finite (got {axis.start!r}, {axis.stop!r})")
+        if axis.spacing == "log":
+            if axis.start <= 0 or axis.stop <= 0:
+                raise ConfigError(
+                    f"{path}: {key}: log spacing needs positive start and stop "
+                    f"(got {axis.start!r}, {axis.stop!r})"
+                )
+            values = np.geomspace(axis.start, axis.stop, axis.num)
+        else:
+            values = np.linspace(axis.start, axis.stop, axis.num)
+        if axis.num > 1 and axis.start == axis.stop:
+            raise ConfigError(f"{path}: {key}: start equals stop ({axis.start!r}) but num is {axis.num}")
+    else:
+        values = np.asarray(axis, dtype=float)
+        bad = [v for v in axis if not math.isfinite(v)]
+        if bad:
+            raise ConfigError(f"{path}: {key}: values must be finite (got {bad[0]!r})")
+        unique, counts = np.unique(values, return_counts=True)
+        if (counts > 1).any():
+            raise ConfigError(f"{path}: {key}: duplicate value {float(unique[counts > 1][0])!r}")
+    return np.sort(values.astype(np.float64))
+
+
+def _check_minimum(values: np.ndarray, minimum: float, key: str, path: str, what: str) -> None:
+    if values.min() < minimum:
+        raise ConfigError(f"{path}: {key}: {what} (got {float(values.min())!r})")
+
+
+def parse_config(text: str, path: str = "<config>") -> SweepConfig:
+    """Validate TOML text; raise :class:`ConfigError` naming ``path``, key and value."""
+    try:
+        document = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise ConfigError(f"{path}: not valid TOML: {err}") from err
+    try:
+        model = ConfigFile.model_validate(document)
+    except ValidationError as err:
+        raise ConfigError(_describe(_pick_error(err.errors()), path)) from err
+
+    grid = model.grid
+    v_inf = _axis_values(grid.v_inf, "grid.v_inf", path)
+    target = _axis_values(grid.target_altitude, "grid.target_altitude", path)
+    periapsis = _axis_values(grid.periapsis_altitude, "grid.periapsis_altitude", path)
+    _check_minimum(v_inf, 0.0, "grid.v_inf", path, "arrival speeds must be >= 0 km/s")
+    _check_minimum(target, 0.0, "grid.target_altitude", path, "altitudes must be >= 0 km (above the mean surface)")
+    _check_minimum(periapsis, 0.0, "grid.periapsis_altitude", path, "altitudes must be >= 0 km (above the mean surface)")
+    if model.crossover.v_inf_min >= model.crossover.v_inf_max:
+        raise ConfigError(
+            f"{path}: crossover: v_inf_min must be below v_inf_max "
+            f"(got {model.crossover.v_inf_min!r} and {model.crossover.v_inf_max!r})"
+        )
+    return SweepConfig(
+        name=model.name,
+        description=model.description,
+        bodies=_resolve_bodies(grid.bodies, model.bodies, path),
+        v_inf=v_inf,
+        target_altitude=target,
+        periapsis_altitude=periapsis,
+        specific_impulse=model.spacecraft.specific_impulse,
+        arrival_mass=model.spacecraft.arrival_mass,
+        apoapsis_fraction=model.three_burn.apoapsis_fraction,
+        max_time_to_orbit=None
+        if model.three_burn.max_time_to_orbit is None
+        else model.three_burn.max_time_to_orbit * _DAY,
+        crossover_range=(model.crossover.v_inf_min, model.crossover.v_inf_max),
+        text=text,
+        path=path,
+    )
+
+
+def _resolve_bodies(names: list[str], defined: dict[str, BodyFields], path: str) -> tuple[Body, ...]:
+    known = set(catalog()) | set(defined)
+    overrides = {key: fields.model_dump() for key, fields in defined.items()}
+    seen: set[str] = set()
+    bodies = []
+    for index, name in enumerate(names):
+        key = name.strip().lower()
+        if key in seen:
+            raise ConfigError(f"{path}: grid.bodies.{index}: duplicate body {name!r}")
+        seen.add(key)
+        if key not in known:
+            close = difflib.get_close_matches(key, sorted(known), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise ConfigError(
+                f"{path}: grid.bodies.{index}: unknown body {name!r}{hint} "
+                "(see `capsweep bodies`, or define it in a [bodies.NAME] table)"
+            )
+        try:
+            body = resolve_body(key, overrides, origin=path)
+        except CatalogError as err:
+            raise ConfigError(f"{err} (in [bodies.{key}])") from err
+        if not body.parent:
+            raise ConfigError(
+                f"{path}: grid.bodies.{index}: {name!r} has no parent body, so no sphere of "
+                "influence bounds a capture about it"
+            )
+        bodies.append(body)
+    return tuple(bodies)
+
+
+def load_config(path: str | Path | None = None) -> SweepConfig:
+    """Read and validate a TOML config; ``None`` loads the packaged demo."""
+    if path is None:
+        text = resources.files("sweep").joinpath(DEMO_CONFIG).read_text(encoding="utf-8")
+        return parse_config(text, f"<packaged {DEMO_CONFIG}>")
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError as err:
+        raise ConfigError(f"{path}: config file not found") from err
+    except OSError as err:
+        raise ConfigError(f"{path}: cannot read config file: {err.strerror}") from err
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as err:
+        raise ConfigError(f"{path}: config file is not UTF-8 text ({err.reason} at byte {err.start})") from err
+    return parse_config(text, str(path))

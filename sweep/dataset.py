@@ -1,0 +1,183 @@
+"""Arrays plus metadata -> a CF-1.11 xarray Dataset; atomic netCDF4 writes; friendly reads."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import tempfile
+from datetime import UTC, datetime
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from sweep import __version__
+from sweep.catalog import catalog_text
+from sweep.config import SweepConfig
+from sweep.evaluate import NO_STRATEGY, SweepArrays
+from sweep.grid import DIMENSIONS
+from sweep.strategies import STATUSES, STRATEGIES, strategy_names
+
+__all__ = ["CAUTION", "REFERENCES", "build_dataset", "open_cube", "write_dataset"]
+
+CAUTION = (
+    "Preliminary estimates from a patched-conic, two-body model with impulsive burns. "
+    "Finite-burn gravity losses, oblateness, third-body and atmospheric effects, navigation "
+    "errors and margins are not included. Verify with higher-fidelity propagation and the "
+    "mission's own flight-dynamics review; mission rules and licensed practice decide."
+)
+REFERENCES = (
+    "H. D. Curtis, Orbital Mechanics for Engineering Students, 3rd ed., 2014 (Ch. 6, Ch. 8); "
+    "D. A. Vallado, Fundamentals of Astrodynamics and Applications, 4th ed., 2013 (Sec. 6.3); "
+    "body constants: JPL Solar System Dynamics and IAU WGCCRE 2015, see body_* variables"
+)
+_VIS_VIVA = "vis-viva energy relation on patched conics (Curtis 2014, Ch. 2, 6, 8)"
+_ROCKET = "ideal rocket equation (Tsiolkovsky), g0 = 9.80665 m s-2"
+_PER_POINT = ("strategy", *DIMENSIONS)
+
+
+def _attrs(units: str, long_name: str, **extra: str) -> dict[str, str]:
+    return {"units": units, "long_name": long_name, **extra}
+
+
+def _status_attrs() -> dict:
+    return {
+        "long_name": "feasibility of the strategy at the grid point",
+        "units": "1",
+        "flag_values": np.arange(len(STATUSES), dtype=np.int8),
+        "flag_meanings": " ".join(status.name for status in STATUSES),
+        "comment": "; ".join(f"{code} {s.name}: {s.reason}" for code, s in enumerate(STATUSES)),
+    }
+
+
+def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
+    """Label the arrays of :func:`sweep.evaluate.evaluate` as a CF-1.11 Dataset."""
+    bodies = config.bodies
+    names = strategy_names()
+    coords = {
+        "v_inf": ("v_inf", config.v_inf, _attrs("km s-1", "hyperbolic arrival speed (v-infinity)")),
+        "target_altitude": ("target_altitude", config.target_altitude,
+                            _attrs("km", "altitude of the circular target orbit above the mean radius")),
+        "periapsis_altitude": ("periapsis_altitude", config.periapsis_altitude,
+                               _attrs("km", "altitude of the approach periapsis used by two_burn and three_burn")),
+        "burn": ("burn", np.arange(1, arrays.burn_delta_v.shape[1] + 1, dtype=np.int32),
+                 _attrs("1", "burn number in order of execution")),
+        "body_name": ("body", np.array([b.name for b in bodies], dtype=object),
+                      {"long_name": "body name (lower case)"}),
+        "strategy_name": ("strategy", np.array(names, dtype=object), {"long_name": "capture strategy name"}),
+    }
+    body_vars = {
+        "body_gm": (np.array([b.gm for b in bodies]), _attrs("m3 s-2", "gravitational parameter of the body")),
+        "body_radius": (np.array([b.radius for b in bodies]) / 1e3, _attrs("km", "mean radius of the body")),
+        "body_safe_periapsis_altitude": (
+            np.array([b.safe_periapsis_altitude for b in bodies]) / 1e3,
+            _attrs("km", "lowest safe periapsis altitude of the body"),
+        ),
+        "sphere_of_influence_radius": (arrays.sphere_of_influence,
+                                       _attrs("km", "Laplace sphere-of-influence radius, a (m/M)^(2/5)")),
+        "hill_radius": (arrays.hill_radius, _attrs("km", "Hill radius, a (m/3M)^(1/3)")),
+        "apoapsis_bound": (arrays.apoapsis_bound, _attrs(
+            "km", "largest admissible apoapsis radius",
+            comment=f"{config.apoapsis_fraction} x min(Hill radius, sphere of influence); the fraction "
+            "follows Shen and Tremaine 2008 (AJ 136), prograde orbits bound to about half the Hill radius",
+        )),
+    }
+    best_meanings = " ".join(names)
+    data_vars = {
+        "delta_v": (_PER_POINT, arrays.delta_v, _attrs(
+            "m s-1", "total delta-v of the capture sequence", references=_VIS_VIVA,
+            ancillary_variables="status", comment="NaN where status is not ok")),
+        "burn_delta_v": (("strategy", "burn", *DIMENSIONS), arrays.burn_delta_v, _attrs(
+            "m s-1", "delta-v of each burn", references=_VIS_VIVA, ancillary_variables="status",
+            comment="0 for burns a strategy does not make; NaN where status is not ok")),
+        "propellant_mass": (_PER_POINT, arrays.propellant_mass, _attrs(
+            "kg", "propellant burned for the whole sequence", references=_ROCKET,
+            comment=f"arrival mass {config.arrival_mass} kg, specific impulse {config.specific_impulse} s")),
+        "time_to_orbit": (_PER_POINT, arrays.time_to_orbit, _attrs(
+            "s", "time from periapsis arrival to the last burn (on the target orbit)")),
+        "status": (_PER_POINT, arrays.status, _status_attrs()),
+        "best_strategy": (DIMENSIONS, arrays.best_strategy, {
+            "long_name": "feasible strategy of least total delta-v", "units": "1",
+            "flag_values": np.arange(len(names), dtype=np.int8), "flag_meanings": best_meanings,
+            "_FillValue": np.int8(NO_STRATEGY),
+            "comment": "fill where no strategy is feasible (see status)"}),
+        "saving_over_direct": (DIMENSIONS, arrays.saving_over_direct, _attrs(
+            "m s-1", "delta-v of direct minus delta-v of the best strategy")),
+        "propellant_saving": (DIMENSIONS, arrays.propellant_saving, _attrs(
+            "kg", "propellant of direct minus propellant of the best strategy")),
+        "intermediate_apoapsis_altitude": (DIMENSIONS, arrays.intermediate_apoapsis_altitude, _attrs(
+            "km", "three_burn intermediate apoapsis altitude minimising total delta-v within the bound",
+            comment="NaN where three_burn is infeasible")),
+    }
+    low, high = config.crossover_range
+    for index, name in enumerate(("crossover_v_inf", "three_burn_crossover_v_inf")):
+        challenger = names[index + 1]
+        data_vars[name] = (("body", "target_altitude", "periapsis_altitude"), arrays.crossover_v_inf[index], _attrs(
+            "km s-1", f"arrival speed at which {challenger} and direct need the same delta-v",
+            valid_min=low, valid_max=high,
+            comment=f"closed-form root of the model's cost difference; searched {low} to {high} km s-1; "
+            f"NaN where no root lies in that range or where {challenger} or direct is infeasible",
+        ))
+    for name, (values, attrs) in body_vars.items():
+        data_vars[name] = (("body",), values, attrs)
+    dataset = xr.Dataset(data_vars, coords=coords)
+    dataset.attrs = {
+        "Conventions": "CF-1.11",
+        "title": f"capsweep capture trade: {config.name}",
+        "summary": config.description or "capture-strategy delta-v sweep",
+        "institution": "capsweep user",
+        "source": f"capsweep {__version__}",
+        "history": f"{datetime.now(UTC).strftime('%Y-%m-%dT%H:%M:%SZ')} capsweep {__version__} run of {config.path}",
+        "references": REFERENCES,
+        "comment": CAUTION,
+        "strategies": "; ".join(f"{s.name}: {s.description}" for s in STRATEGIES),
+        "config_toml": config.text,
+        "config_sha256": hashlib.sha256(config.text.encode()).hexdigest(),
+        "catalog_sha256": hashlib.sha256(catalog_text().encode()).hexdigest(),
+        "spacecraft_arrival_mass_kg": config.arrival_mass,
+        "spacecraft_specific_impulse_s": config.specific_impulse,
+    }
+    return dataset
+
+
+def _encoding(dataset: xr.Dataset) -> dict:
+    """No fill values on coordinates (CF); NaN fill on float data; none on flag data."""
+    encoding = {name: {"_FillValue": None} for name in dataset.coords}
+    for name, variable in dataset.data_vars.items():
+        if variable.dtype.kind == "f":
+            encoding[name] = {"_FillValue": np.nan}
+        elif "_FillValue" not in variable.attrs:
+            encoding[name] = {"_FillValue": None}
+    return encoding
+
+
+def write_dataset(dataset: xr.Dataset, path: str | Path) -> Path:
+    """
+    Write ``dataset`` to ``path`` (netCDF4) atomically: a temporary file in the same folder,
+    renamed over the target only once complete. A failure leaves any earlier file intact.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    os.close(handle)
+    try:
+        dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4", encoding=_encoding(dataset))
+        os.replace(temporary, path)
+    except BaseException:
+        Path(temporary).unlink(missing_ok=True)
+        raise
+    return path
+
+
+def open_cube(path: str | Path) -> xr.Dataset:
+    """
+    Open a cube with ``body`` and ``strategy`` indexed by name, e.g.
+    ``open_cube(p).delta_v.sel(body="mars", strategy="two_burn")``.
+
+    The labels are assigned in memory only; the file keeps CF's integer dimensions with the
+    ``body_name`` and ``strategy_name`` label variables.
+    """
+    dataset = xr.open_dataset(path)
+    return dataset.assign_coords(
+        body=dataset["body_name"].values.astype(str), strategy=dataset["strategy_name"].values.astype(str)
+    )

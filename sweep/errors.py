@@ -1,0 +1,17 @@
+"""Exceptions raised by capsweep. The command line catches :class:`SweepError` and exits 2."""
+
+from __future__ import annotations
+
+__all__ = ["CatalogError", "ConfigError", "SweepError"]
+
+
+class SweepError(Exception):
+    """Base class of every error capsweep reports to the user without a traceback."""
+
+
+class ConfigError(SweepError, ValueError):
+    """A configuration file, key or value is invalid; the message names all three."""
+
+
+class CatalogError(SweepError, ValueError):
+    """The body catalog, or a cube's body data, is inconsistent or incomplete."""

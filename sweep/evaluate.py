@@ -1,0 +1,223 @@
+"""Evaluate every strategy over the grid: per-body geometry once, then chunks of arrival speeds.
+
+The impulsive kernels are cheap and memory-bound, so chunks run on threads that write into
+shared, preallocated output arrays (numpy releases the GIL inside its loops); processes
+would spend more time shipping results back than computing them. Chunks depend on the grid
+alone, so the cube is bit-identical for any number of workers.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+from dataclasses import dataclass
+
+import numpy as np
+from joblib import Parallel, delayed
+from tqdm.auto import tqdm
+
+from sweep.config import SweepConfig
+from sweep.grid import Chunk, chunks
+from sweep.physics.capture import (
+    best_intermediate_apoapsis,
+    equal_cost_v_inf,
+    time_limited_apoapsis,
+)
+from sweep.physics.conics import hyperbolic_periapsis_speed
+from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.strategies import STATUSES, STRATEGIES, Geometry
+
+__all__ = ["BodyPlan", "SweepArrays", "evaluate", "plan_body"]
+
+logger = logging.getLogger(__name__)
+
+_KM = 1.0e3  # m per km
+_CODE = {status.name: code for code, status in enumerate(STATUSES)}
+NO_STRATEGY = -1  # best_strategy where no strategy is feasible
+
+
+@dataclass(frozen=True)
+class BodyPlan:
+    """Everything about one body's grid that does not depend on the arrival speed (SI)."""
+
+    geometry: Geometry
+    status: np.ndarray  # int8 (strategy, target, periapsis)
+    times: np.ndarray  # s (strategy, target, periapsis), NaN where infeasible
+    apoapsis_bound: float  # m
+    crossover: np.ndarray  # m/s (challenger strategy, target, periapsis); [0] two_burn, [1] three_burn
+
+
+@dataclass
+class SweepArrays:
+    """Plain arrays of a sweep, in cube dimension order; units as named in :mod:`sweep.dataset`."""
+
+    delta_v: np.ndarray
+    burn_delta_v: np.ndarray
+    propellant_mass: np.ndarray
+    time_to_orbit: np.ndarray
+    status: np.ndarray
+    best_strategy: np.ndarray
+    saving_over_direct: np.ndarray
+    propellant_saving: np.ndarray
+    intermediate_apoapsis_altitude: np.ndarray
+    crossover_v_inf: np.ndarray
+    apoapsis_bound: np.ndarray
+    sphere_of_influence: np.ndarray
+    hill_radius: np.ndarray
+
+
+def _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
+                  periapsis_radius, bound, time_exceeded) -> np.ndarray:
+    """Feasibility code per (target, periapsis): the first reason that applies, else 0."""
+    safe = body.safe_periapsis_altitude
+    conditions = [
+        np.broadcast_to(bound <= body.radius + safe, time_exceeded.shape),
+        target_altitude < safe,
+        target_radius > bound,
+    ]
+    codes = ["sphere_of_influence_too_small", "target_below_safe_altitude", "target_outside_bound"]
+    if strategy.uses_periapsis:
+        conditions += [periapsis_altitude < safe, periapsis_radius > bound]
+        codes += ["periapsis_below_safe_altitude", "periapsis_outside_bound"]
+    conditions.append(time_exceeded)
+    codes.append("time_limit_exceeded")
+    conditions = [np.broadcast_to(c, time_exceeded.shape) for c in conditions]
+    return np.select(conditions, [_CODE[c] for c in codes], default=_CODE["ok"]).astype(np.int8)
+
+
+def plan_body(body, config: SweepConfig) -> BodyPlan:
+    """Geometry, feasibility, times, chosen apoapsis and crossover speeds for one body."""
+    target_altitude = config.target_altitude[:, None] * _KM
+    periapsis_altitude = config.periapsis_altitude[None, :] * _KM
+    target_radius = body.radius + target_altitude
+    periapsis_radius = body.radius + periapsis_altitude
+    bound = config.apoapsis_fraction * min(body.sphere_of_influence, body.hill_radius)
+    upper = np.full(np.broadcast_shapes(target_radius.shape, periapsis_radius.shape), bound)
+    time_capped = np.zeros(upper.shape, dtype=bool)
+    if config.max_time_to_orbit is not None:
+        limit = time_limited_apoapsis(body.gm, periapsis_radius, target_radius, config.max_time_to_orbit)
+        time_capped = np.isnan(limit)
+        upper = np.fmin(upper, limit)
+    apoapsis = best_intermediate_apoapsis(body.gm, periapsis_radius, target_radius, upper)
+    geometry = Geometry(body.gm, periapsis_radius, target_radius, apoapsis)
+
+    status, times, constants = [], [], []
+    for strategy in STRATEGIES:
+        maneuver = strategy.kernel(np.zeros(1), geometry)
+        time = np.broadcast_to(maneuver.time, upper.shape)
+        exceeded = time_capped if strategy.name == "three_burn" else np.zeros(upper.shape, dtype=bool)
+        if config.max_time_to_orbit is not None:
+            exceeded = exceeded | (time > config.max_time_to_orbit)
+        code = _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
+                             periapsis_radius, bound, exceeded)
+        status.append(code)
+        times.append(np.where(code == 0, time, np.nan))
+        # Cost = sqrt(v_inf^2 + 2 mu / r_1) + G: G is the total at v_inf = 0 minus escape speed.
+        escape = hyperbolic_periapsis_speed(0.0, body.gm, strategy.first_burn_radius(geometry))
+        constants.append(np.broadcast_to(sum(maneuver.burns) - escape, upper.shape))
+    status = np.stack(status)
+    low, high = (speed * _KM for speed in config.crossover_range)
+    crossover = []
+    for index in (1, 2):  # two_burn and three_burn against direct (index 0)
+        challenger = STRATEGIES[index]
+        speed = equal_cost_v_inf(
+            body.gm, challenger.first_burn_radius(geometry), target_radius, constants[0] - constants[index]
+        )
+        usable = (status[0] == 0) & (status[index] == 0) & (speed >= low) & (speed <= high)
+        crossover.append(np.where(usable, speed, np.nan))
+    return BodyPlan(geometry, status, np.stack(times), bound, np.stack(crossover))
+
+
+def _allocate(config: SweepConfig) -> SweepArrays:
+    shape = config.shape
+    count = len(STRATEGIES)
+    nbody, _, ntarget, nperiapsis = shape
+    return SweepArrays(
+        delta_v=np.empty((count, *shape)),
+        burn_delta_v=np.empty((count, max(s.burns for s in STRATEGIES), *shape)),
+        propellant_mass=np.empty((count, *shape)),
+        time_to_orbit=np.empty((count, *shape)),
+        status=np.empty((count, *shape), dtype=np.int8),
+        best_strategy=np.empty(shape, dtype=np.int8),
+        saving_over_direct=np.empty(shape),
+        propellant_saving=np.empty(shape),
+        intermediate_apoapsis_altitude=np.empty(shape),
+        crossover_v_inf=np.empty((2, nbody, ntarget, nperiapsis)),
+        apoapsis_bound=np.empty(nbody),
+        sphere_of_influence=np.empty(nbody),
+        hill_radius=np.empty(nbody),
+    )
+
+
+def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepConfig, out: SweepArrays) -> None:
+    b, speeds = chunk.body, slice(chunk.v_inf_start, chunk.v_inf_stop)
+    speed = v_inf[speeds, None, None] * _KM
+    exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
+    for index, strategy in enumerate(STRATEGIES):
+        maneuver = strategy.kernel(speed, plan.geometry)
+        infeasible = plan.status[index] != 0
+        total = out.delta_v[index, b, speeds]
+        total[...] = maneuver.burns[0]
+        for burn in range(out.burn_delta_v.shape[1]):
+            target = out.burn_delta_v[index, burn, b, speeds]
+            if burn < len(maneuver.burns):
+                target[...] = maneuver.burns[burn]
+                if burn:
+                    total += maneuver.burns[burn]
+            else:
+                target[...] = 0.0
+            np.copyto(target, np.nan, where=infeasible)
+        np.copyto(total, np.nan, where=infeasible)
+        propellant = out.propellant_mass[index, b, speeds]
+        np.divide(total, -exhaust_speed, out=propellant)
+        np.expm1(propellant, out=propellant)
+        propellant *= -config.arrival_mass
+        out.time_to_orbit[index, b, speeds] = plan.times[index]
+        out.status[index, b, speeds] = plan.status[index]
+    totals = out.delta_v[:, b, speeds]
+    feasible = ~np.isnan(totals)
+    best = np.argmin(np.where(feasible, totals, np.inf), axis=0)
+    best_dv = np.take_along_axis(totals, best[None], axis=0)[0]
+    best_propellant = np.take_along_axis(out.propellant_mass[:, b, speeds], best[None], axis=0)[0]
+    out.best_strategy[b, speeds] = np.where(feasible.any(axis=0), best, NO_STRATEGY)
+    out.saving_over_direct[b, speeds] = totals[0] - best_dv
+    out.propellant_saving[b, speeds] = out.propellant_mass[0, b, speeds] - best_propellant
+    three_burn_ok = plan.status[2] == 0
+    out.intermediate_apoapsis_altitude[b, speeds] = np.where(
+        three_burn_ok, (plan.geometry.apoapsis_radius - config.bodies[b].radius) / _KM, np.nan
+    )
+
+
+def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = False,
+             points_per_chunk: int = 1 << 20) -> SweepArrays:
+    """
+    Evaluate every strategy at every grid point.
+
+    Parameters
+    ----------
+    config : SweepConfig
+        The validated sweep.
+    workers : int, optional
+        Threads to run chunks on; ``None`` or 0 uses every core.
+    progress : bool
+        Show a progress bar (for terminals).
+    points_per_chunk : int
+        Target size of one chunk; the result does not depend on it or on ``workers``.
+    """
+    workers = workers or os.cpu_count() or 1
+    out = _allocate(config)
+    plans = []
+    for index, body in enumerate(config.bodies):
+        plan = plan_body(body, config)
+        plans.append(plan)
+        out.crossover_v_inf[:, index] = plan.crossover / _KM
+        out.apoapsis_bound[index] = plan.apoapsis_bound / _KM
+        out.sphere_of_influence[index] = body.sphere_of_influence / _KM
+        out.hill_radius[index] = body.hill_radius / _KM
+    work = chunks(config.shape, points_per_chunk)
+    logger.info("evaluating %d points in %d chunks on %d threads", int(np.prod(config.shape)), len(work), workers)
+    tasks = (delayed(_run_chunk)(chunk, plans[chunk.body], config.v_inf, config, out) for chunk in work)
+    runner = Parallel(n_jobs=min(workers, len(work)), backend="threading", return_as="generator")
+    for _ in tqdm(runner(tasks), total=len(work), disable=not progress, unit="chunk", desc="sweep"):
+        pass
+    return out

@@ -1,0 +1,1 @@
+"""Pure, vectorized physics kernels in SI units: no xarray, no I/O, no logging."""

@@ -1,0 +1,355 @@
+r"""Impulsive capture sequences from a hyperbolic approach into a circular orbit.
+
+Each strategy kernel returns a :class:`Maneuver`: the magnitude of every burn and the time
+from periapsis arrival until the last burn puts the spacecraft on the target circle. All
+kernels are pure numpy, broadcast their inputs and work in SI units.
+
+A property used throughout: in every sequence here only the first burn depends on the
+arrival speed, and it does so through the hyperbolic periapsis speed alone
+(:math:`\Delta v_1 = \sqrt{v_\infty^2 + 2\mu/r_p} - v_{ellipse}(r_p)`). So the cost of a
+strategy is :math:`\sqrt{v_\infty^2 + 2\mu/r_p} + G`, where :math:`G` does not depend on
+:math:`v_\infty`. Sub-expressions that do not involve :math:`v_\infty` therefore broadcast
+over the other axes only, the intermediate apoapsis can be chosen once for all arrival
+speeds, and the arrival speed at which two strategies cost the same has a closed form
+(:func:`equal_cost_v_inf`).
+
+References
+----------
+.. [1] H. D. Curtis, *Orbital Mechanics for Engineering Students*, 3rd ed.
+   Oxford, UK: Butterworth-Heinemann, 2014. Ch. 6 (Hohmann and bi-elliptic transfers),
+   Ch. 8 (planetary arrival and capture).
+.. [2] D. A. Vallado, *Fundamentals of Astrodynamics and Applications*, 4th ed.
+   Hawthorne, CA: Microcosm Press, 2013. Sec. 6.3 (coplanar transfers).
+.. [3] J. Kiefer, "Sequential minimax search for a maximum", Proc. Amer. Math. Soc.
+   4(3):502-506, 1953, doi:10.1090/S0002-9939-1953-0055639-3 (golden-section search).
+"""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from sweep.physics.conics import (
+    apsis_speed,
+    circular_speed,
+    half_period,
+    hyperbolic_periapsis_speed,
+)
+
+__all__ = [
+    "Maneuver",
+    "best_intermediate_apoapsis",
+    "direct_capture",
+    "equal_cost_v_inf",
+    "three_burn_capture",
+    "time_limited_apoapsis",
+    "two_burn_capture",
+]
+
+_SCAN_POINTS = 33  # candidate apoapses on the first, coarse pass
+_GOLDEN_STEPS = 48  # golden-section steps: the log-bracket shrinks by 0.618**48 ~ 1e-10
+_BISECTION_STEPS = 64  # halvings of a log-bracket: far below float64 resolution of radius
+
+
+class Maneuver(NamedTuple):
+    """Burn magnitudes [m/s] in order of execution and the time to the last burn [s]."""
+
+    burns: tuple[np.ndarray, ...]
+    time: np.ndarray
+
+
+def direct_capture(v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike) -> Maneuver:
+    r"""
+    One burn at periapsis, placed at the target radius, from the hyperbola to the circle.
+
+    Parameters
+    ----------
+    v_inf : numeric
+        Arrival (hyperbolic excess) speed. [m/s]
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    target_radius : numeric
+        Radius of the circular target orbit. [m]
+
+    Returns
+    -------
+    Maneuver
+        ``burns = (dv,)`` [m/s]; ``time`` is zero: the spacecraft is on the target circle
+        as the burn ends at periapsis arrival [s]. NaN where the radius <= 0.
+
+    Notes
+    -----
+    :math:`\Delta v = \sqrt{v_\infty^2 + 2\mu/r} - \sqrt{\mu/r}` ([1]_ Ch. 8, capture into a
+    circular orbit; the departure burn of the same geometry has the same magnitude).
+
+    Examples
+    --------
+    >>> m = direct_capture(2943.0, 3.986e14, 6678.0e3)
+    >>> round(float(m.burns[0]), 0)
+    3590.0
+    """
+    burn = hyperbolic_periapsis_speed(v_inf, gm, target_radius) - circular_speed(gm, target_radius)
+    return Maneuver((burn,), np.zeros_like(burn))
+
+
+def two_burn_capture(
+    v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike
+) -> Maneuver:
+    r"""
+    Capture at the approach periapsis into the ellipse that touches the target radius,
+    then circularize there half an orbit later.
+
+    Parameters
+    ----------
+    v_inf : numeric
+        Arrival (hyperbolic excess) speed. [m/s]
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    periapsis_radius : numeric
+        Periapsis radius of the approach hyperbola, where the first burn is made. It may lie
+        below the target (a low dive) or above it (capture high, then lower). [m]
+    target_radius : numeric
+        Radius of the circular target orbit. [m]
+
+    Returns
+    -------
+    Maneuver
+        ``burns = (dv1, dv2)`` [m/s]; ``time``: half the period of the intermediate ellipse,
+        or zero where the two radii are equal and the second burn vanishes [s].
+
+    Notes
+    -----
+    The intermediate ellipse has apsides :math:`r_p` and :math:`r_t`, so the second burn is
+    the second burn of a Hohmann transfer between the two radii ([1]_ Ch. 6; [2]_ Sec. 6.3):
+    :math:`\Delta v_1 = v_{hyp}(r_p) - v_{ell}(r_p)`,
+    :math:`\Delta v_2 = |v_c(r_t) - v_{ell}(r_t)|`.
+    """
+    first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
+        gm, periapsis_radius, target_radius
+    )
+    second = np.abs(circular_speed(gm, target_radius) - apsis_speed(gm, target_radius, periapsis_radius))
+    time = np.where(
+        np.equal(periapsis_radius, target_radius), 0.0, half_period(gm, periapsis_radius, target_radius)
+    )
+    return Maneuver((first, second), time)
+
+
+def three_burn_capture(
+    v_inf: ArrayLike,
+    gm: ArrayLike,
+    periapsis_radius: ArrayLike,
+    target_radius: ArrayLike,
+    apoapsis_radius: ArrayLike,
+) -> Maneuver:
+    r"""
+    Capture into a high ellipse, move periapsis to the target radius at its apoapsis, then
+    lower the apoapsis to the target radius.
+
+    Parameters
+    ----------
+    v_inf : numeric
+        Arrival (hyperbolic excess) speed. [m/s]
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    periapsis_radius : numeric
+        Periapsis radius of the approach hyperbola. [m]
+    target_radius : numeric
+        Radius of the circular target orbit. [m]
+    apoapsis_radius : numeric
+        Apoapsis radius of the intermediate ellipse, no smaller than either other radius. [m]
+
+    Returns
+    -------
+    Maneuver
+        ``burns = (dv1, dv2, dv3)`` [m/s]; ``time``: half a period of the capture ellipse
+        plus half a period of the ellipse from the apoapsis down to the target [s].
+
+    Notes
+    -----
+    Burn 1 at :math:`r_p`: hyperbola to the ellipse :math:`(r_p, r_a)`. Burn 2 at
+    :math:`r_a`: to the ellipse :math:`(r_t, r_a)`. Burn 3 at :math:`r_t`: to the circle.
+    Each is a difference of vis-viva apsis speeds, as in the bi-elliptic transfer
+    ([1]_ Ch. 6; [2]_ Sec. 6.3). With :math:`r_a = r_t \ge r_p` it reduces to
+    :func:`two_burn_capture`.
+    """
+    first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
+        gm, periapsis_radius, apoapsis_radius
+    )
+    second = np.abs(
+        apsis_speed(gm, apoapsis_radius, target_radius) - apsis_speed(gm, apoapsis_radius, periapsis_radius)
+    )
+    third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius) - circular_speed(gm, target_radius))
+    time = half_period(gm, periapsis_radius, apoapsis_radius) + half_period(
+        gm, target_radius, apoapsis_radius
+    )
+    return Maneuver((first, second, third), time)
+
+
+def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius):
+    """Total three-burn delta-v at zero arrival speed (the v_inf-free part plus a constant)."""
+    return sum(three_burn_capture(0.0, gm, periapsis_radius, target_radius, apoapsis_radius).burns)
+
+
+def best_intermediate_apoapsis(
+    gm: ArrayLike,
+    periapsis_radius: ArrayLike,
+    target_radius: ArrayLike,
+    upper_radius: ArrayLike,
+) -> np.ndarray:
+    r"""
+    Intermediate apoapsis that minimises the total three-burn delta-v within a bound.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    periapsis_radius, target_radius : numeric
+        Approach periapsis and target radii. [m]
+    upper_radius : numeric
+        Largest admissible apoapsis radius. [m]
+
+    Returns
+    -------
+    apoapsis_radius : numeric
+        The minimising radius in :math:`[\max(r_p, r_t), r_{upper}]`; the lower end where
+        the bound lies below it; NaN where any input is NaN. The answer holds for every
+        arrival speed (see the module notes). [m]
+
+    Notes
+    -----
+    A scan of 33 log-spaced candidates between the ends, then golden-section search
+    ([3]_) on log radius around the best candidate; the better of the scan's best and the
+    refined point is returned, so an optimum at an end of the interval is returned exactly.
+    In the coplanar impulsive model the total has been seen to fall monotonically with the
+    apoapsis (so the bound decides), but nothing here relies on that.
+    """
+    gm, periapsis_radius, target_radius, upper_radius = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (gm, periapsis_radius, target_radius, upper_radius))
+    )
+    lower = np.maximum(periapsis_radius, target_radius)
+    upper = np.maximum(upper_radius, lower)
+    fraction = np.linspace(0.0, 1.0, _SCAN_POINTS)
+    log_lower, log_upper = np.log(lower)[..., None], np.log(upper)[..., None]
+    log_candidates = log_lower + (log_upper - log_lower) * fraction
+    candidates = np.exp(log_candidates)
+    candidates[..., 0], candidates[..., -1] = lower, upper  # the ends exactly, not via exp(log)
+    args = (gm[..., None], periapsis_radius[..., None], target_radius[..., None])
+    cost = _three_burn_total(*args, candidates)
+    best = np.argmin(np.where(np.isnan(cost), np.inf, cost), axis=-1)[..., None]
+    scan_best = np.take_along_axis(candidates, best, axis=-1)[..., 0]
+    scan_cost = np.take_along_axis(cost, best, axis=-1)[..., 0]
+    left = np.take_along_axis(log_candidates, np.maximum(best - 1, 0), axis=-1)[..., 0]
+    right = np.take_along_axis(log_candidates, np.minimum(best + 1, _SCAN_POINTS - 1), axis=-1)[..., 0]
+    args = args[0][..., 0], args[1][..., 0], args[2][..., 0]
+    ratio = (np.sqrt(5.0) - 1.0) / 2.0
+    inner_left = right - ratio * (right - left)
+    inner_right = left + ratio * (right - left)
+    cost_left = _three_burn_total(*args, np.exp(inner_left))
+    cost_right = _three_burn_total(*args, np.exp(inner_right))
+    for _ in range(_GOLDEN_STEPS):
+        keep_left = cost_left <= cost_right
+        old_inner_left, old_inner_right = inner_left, inner_right
+        right = np.where(keep_left, old_inner_right, right)
+        left = np.where(keep_left, left, old_inner_left)
+        inner_left = np.where(keep_left, right - ratio * (right - left), old_inner_right)
+        inner_right = np.where(keep_left, old_inner_left, left + ratio * (right - left))
+        moved_cost = _three_burn_total(*args, np.exp(np.where(keep_left, inner_left, inner_right)))
+        cost_left, cost_right = (
+            np.where(keep_left, moved_cost, cost_right),
+            np.where(keep_left, cost_left, moved_cost),
+        )
+    refined = np.exp(0.5 * (left + right))
+    refined_cost = _three_burn_total(*args, refined)
+    chosen = np.where(refined_cost < scan_cost, refined, scan_best)
+    return np.where(np.isnan(upper) | np.isnan(scan_cost), np.nan, chosen)
+
+
+def time_limited_apoapsis(
+    gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike, max_time: ArrayLike
+) -> np.ndarray:
+    r"""
+    Largest intermediate apoapsis whose three-burn sequence reaches the target in time.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    periapsis_radius, target_radius : numeric
+        Approach periapsis and target radii. [m]
+    max_time : numeric
+        Longest admissible time from periapsis arrival to the last burn. [s]
+
+    Returns
+    -------
+    apoapsis_radius : numeric
+        Radius where the time of :func:`three_burn_capture` equals ``max_time``; NaN where
+        even the smallest apoapsis, :math:`\max(r_p, r_t)`, takes longer. [m]
+
+    Notes
+    -----
+    The time is a sum of two half periods, each rising with the apoapsis (Kepler's third
+    law, [1]_ Ch. 2), so bisection on log radius between the smallest apoapsis and
+    :math:`2 (\mu (t_{max}/2\pi)^2)^{1/3}` (where each half period alone reaches
+    :math:`t_{max}/2`) brackets the single root.
+    """
+    gm, periapsis_radius, target_radius, max_time = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (gm, periapsis_radius, target_radius, max_time))
+    )
+
+    def time_of(apoapsis):
+        return half_period(gm, periapsis_radius, apoapsis) + half_period(gm, target_radius, apoapsis)
+
+    lower = np.maximum(periapsis_radius, target_radius)
+    upper = np.maximum(2.0 * np.cbrt(gm * (max_time / (2.0 * np.pi)) ** 2), lower)
+    low, high = np.log(lower), np.log(upper)
+    for _ in range(_BISECTION_STEPS):
+        middle = 0.5 * (low + high)
+        fits = time_of(np.exp(middle)) <= max_time
+        low = np.where(fits, middle, low)
+        high = np.where(fits, high, middle)
+    return np.where(time_of(lower) <= max_time, np.exp(low), np.nan)
+
+
+def equal_cost_v_inf(
+    gm: ArrayLike, first_radius: ArrayLike, second_radius: ArrayLike, cost_offset: ArrayLike
+) -> np.ndarray:
+    r"""
+    Arrival speed at which two capture sequences with different first-burn radii cost the same.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    first_radius, second_radius : numeric
+        Radii of the first burn of sequence 1 and of sequence 2. [m]
+    cost_offset : numeric
+        :math:`K = G_2 - G_1`, where each sequence costs
+        :math:`\sqrt{v_\infty^2 + 2\mu/r_i} + G_i` (module notes). [m/s]
+
+    Returns
+    -------
+    v_inf : numeric
+        The non-negative root of
+        :math:`\sqrt{v^2 + 2\mu/r_1} - \sqrt{v^2 + 2\mu/r_2} = K`; NaN where there is none
+        (including equal radii). The root is unique where it exists, since the left side is
+        monotonic in :math:`v`. [m/s]
+
+    Notes
+    -----
+    With :math:`p = \sqrt{v^2 + A}`, :math:`q = \sqrt{v^2 + B}`, :math:`A = 2\mu/r_1`,
+    :math:`B = 2\mu/r_2`: :math:`p - q = K` and :math:`p^2 - q^2 = A - B` give
+    :math:`p + q = (A - B)/K`, hence :math:`p = ((A-B)/K + K)/2` and :math:`v^2 = p^2 - A`.
+    Exact for the impulsive model; tested against a bracketing root finder.
+    """
+    escape_first = 2.0 * np.asarray(gm) / np.asarray(first_radius, dtype=float)
+    escape_second = 2.0 * np.asarray(gm) / np.asarray(second_radius, dtype=float)
+    offset = np.asarray(cost_offset, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        total = (escape_first - escape_second) / offset
+        first_speed = 0.5 * (total + offset)
+        second_speed = first_speed - offset
+        square = first_speed**2 - escape_first
+    valid = (offset != 0) & (total > 0) & (first_speed >= 0) & (second_speed >= 0) & (square >= 0)
+    return np.where(valid, np.sqrt(np.where(valid, square, 0.0)), np.nan)
