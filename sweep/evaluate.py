@@ -27,7 +27,7 @@ from sweep.physics.conics import hyperbolic_periapsis_speed
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.strategies import STATUSES, STRATEGIES, Geometry
 
-__all__ = ["BodyPlan", "SweepArrays", "evaluate", "plan_body"]
+__all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
 
 logger = logging.getLogger(__name__)
 
@@ -128,25 +128,37 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     return BodyPlan(geometry, status, np.stack(times), bound, np.stack(crossover))
 
 
-def _allocate(config: SweepConfig) -> SweepArrays:
+def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
+    """Shape and dtype of every output array."""
     shape = config.shape
     count = len(STRATEGIES)
     nbody, _, ntarget, nperiapsis = shape
-    return SweepArrays(
-        delta_v=np.empty((count, *shape)),
-        burn_delta_v=np.empty((count, max(s.burns for s in STRATEGIES), *shape)),
-        propellant_mass=np.empty((count, *shape)),
-        time_to_orbit=np.empty((count, *shape)),
-        status=np.empty((count, *shape), dtype=np.int8),
-        best_strategy=np.empty(shape, dtype=np.int8),
-        saving_over_direct=np.empty(shape),
-        propellant_saving=np.empty(shape),
-        intermediate_apoapsis_altitude=np.empty(shape),
-        crossover_v_inf=np.empty((2, nbody, ntarget, nperiapsis)),
-        apoapsis_bound=np.empty(nbody),
-        sphere_of_influence=np.empty(nbody),
-        hill_radius=np.empty(nbody),
-    )
+    per_strategy = ((count, *shape), np.float64)
+    per_point = (shape, np.float64)
+    return {
+        "delta_v": per_strategy,
+        "burn_delta_v": ((count, max(s.burns for s in STRATEGIES), *shape), np.float64),
+        "propellant_mass": per_strategy,
+        "time_to_orbit": per_strategy,
+        "status": ((count, *shape), np.int8),
+        "best_strategy": (shape, np.int8),
+        "saving_over_direct": per_point,
+        "propellant_saving": per_point,
+        "intermediate_apoapsis_altitude": per_point,
+        "crossover_v_inf": ((2, nbody, ntarget, nperiapsis), np.float64),
+        "apoapsis_bound": ((nbody,), np.float64),
+        "sphere_of_influence": ((nbody,), np.float64),
+        "hill_radius": ((nbody,), np.float64),
+    }
+
+
+def estimate_bytes(config: SweepConfig) -> int:
+    """Bytes of all output arrays: the memory a run needs and, uncompressed, the cube's size."""
+    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in _layout(config).values())
+
+
+def _allocate(config: SweepConfig) -> SweepArrays:
+    return SweepArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype) in _layout(config).items()})
 
 
 def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepConfig, out: SweepArrays) -> None:

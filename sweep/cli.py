@@ -1,0 +1,168 @@
+"""The ``capsweep`` command line: argv in, calls into the pipeline, an exit code out.
+
+No science and no validation live here. Exit 0 on success, 2 on bad input or a failed write
+(one line on stderr naming the file, the field and the value; ``--debug`` adds the traceback).
+"""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import sys
+import time
+from collections.abc import Sequence
+from pathlib import Path
+
+import xarray as xr
+
+from sweep import __version__, run
+from sweep.catalog import catalog
+from sweep.config import load_config
+from sweep.dataset import write_dataset
+from sweep.errors import SweepError
+from sweep.evaluate import estimate_bytes
+from sweep.summary import answers, summary_tables, write_summary
+
+__all__ = ["main"]
+
+_DEFAULT_OUT = Path("outputs")
+
+
+def _build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="capsweep",
+        description="Sweep capture strategies (direct, two-burn, three-burn) for spacecraft arriving on a "
+        "hyperbolic approach; write a CF netCDF cube and a summary of where each strategy wins.",
+    )
+    parser.add_argument("--version", action="version", version=f"capsweep {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show a traceback on errors")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    run_parser = commands.add_parser("run", help="evaluate a sweep; write the cube and the summary")
+    run_parser.add_argument("config", nargs="?", help="TOML config (default: the packaged demo)")
+    run_parser.add_argument("--out", type=Path, help="output folder (default: outputs/<config name>/)")
+    run_parser.add_argument("--workers", type=int, default=0, help="worker threads (default: all cores)")
+    run_parser.add_argument("-q", "--quiet", action="store_true", help="print only where the files went")
+    run_parser.add_argument("-v", "--verbose", action="count", default=0, help="log progress (-vv: debug)")
+
+    check_parser = commands.add_parser("check", help="validate a config; print the grid and cube size")
+    check_parser.add_argument("config", help="TOML config")
+
+    commands.add_parser("bodies", help="list the body catalog with each value's source")
+
+    summarize_parser = commands.add_parser("summarize", help="rebuild the summary from an existing cube")
+    summarize_parser.add_argument("cube", type=Path, help="netCDF cube written by capsweep run")
+    summarize_parser.add_argument("--out", type=Path, help="output folder (default: the cube's folder)")
+    return parser
+
+
+def _size(count: float) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if count < 1024 or unit == "TiB":
+            return f"{count:.1f} {unit}" if unit != "B" else f"{int(count)} B"
+        count /= 1024
+    return ""
+
+
+def _run(args: argparse.Namespace) -> int:
+    config = load_config(args.config)
+    folder = args.out or _DEFAULT_OUT / config.name
+    if args.workers < 0:
+        raise SweepError(f"--workers must be 0 (all cores) or a positive count, got {args.workers}")
+    started = time.perf_counter()
+    dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet)
+    elapsed = time.perf_counter() - started
+    cube = _write(lambda: write_dataset(dataset, folder / f"{config.name}.nc"), folder)
+    files = _write(lambda: write_summary(dataset, folder), folder)
+    points = int(dataset["best_strategy"].size)
+    print(f"cube: {cube}")
+    print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
+    if not args.quiet:
+        print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated in {elapsed:.2f} s")
+        print(_short_answer(dataset))
+    return 0
+
+
+def _write(action, folder: Path):
+    try:
+        return action()
+    except OSError as err:
+        raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
+
+
+def _short_answer(dataset: xr.Dataset) -> str:
+    """The summary's plain-language answers, one block per body."""
+    out = []
+    for body, sentences in answers(dataset).items():
+        out.append(f"{body}:")
+        out += [f"  {sentence}" for sentence in sentences]
+    out.append("Preliminary patched-conic, impulsive estimates: verify with higher-fidelity propagation.")
+    return "\n".join(out)
+
+
+def _check(args: argparse.Namespace) -> int:
+    config = load_config(args.config)
+    shape = config.shape
+    points = shape[0] * shape[1] * shape[2] * shape[3]
+    print(f"{config.path}: valid")
+    print(f"  name: {config.name}")
+    print(f"  bodies: {', '.join(b.name for b in config.bodies)}")
+    for label, values, unit in (("v_inf", config.v_inf, "km/s"), ("target_altitude", config.target_altitude, "km"),
+                                ("periapsis_altitude", config.periapsis_altitude, "km")):
+        print(f"  {label}: {values.size} values, {values[0]:g} to {values[-1]:g} {unit}")
+    print(f"  grid shape (body, v_inf, target_altitude, periapsis_altitude): {shape}")
+    print(f"  points: {points:,} (x 3 strategies)")
+    print(f"  cube size, uncompressed, and memory for the run: about {_size(estimate_bytes(config))}")
+    return 0
+
+
+def _bodies(_: argparse.Namespace) -> int:
+    for name, body in catalog().items():
+        print(f"{name}")
+        print(f"  gm {body.gm / 1e9:.10g} km3 s-2  [{body.sources.get('gm', '')}]")
+        print(f"  mean radius {body.radius / 1e3:g} km  [{body.sources.get('radius', '')}]")
+        print(f"  lowest safe periapsis altitude {body.safe_periapsis_altitude / 1e3:g} km  "
+              f"[{body.sources.get('safe_periapsis_altitude', '')}]")
+        if body.parent:
+            print(f"  parent {body.parent}, semi-major axis {body.semi_major_axis / 1e3:.10g} km  "
+                  f"[{body.sources.get('semi_major_axis', '')}]")
+            print(f"  sphere of influence {body.sphere_of_influence / 1e3:,.0f} km, Hill radius "
+                  f"{body.hill_radius / 1e3:,.0f} km  [computed: a (m/M)^(2/5), a (m/3M)^(1/3)]")
+    return 0
+
+
+def _summarize(args: argparse.Namespace) -> int:
+    try:
+        dataset = xr.open_dataset(args.cube)
+    except FileNotFoundError as err:
+        raise SweepError(f"{args.cube}: cube not found") from err
+    except (OSError, ValueError) as err:
+        raise SweepError(f"{args.cube}: not a readable netCDF cube ({err})") from err
+    with dataset:
+        missing = [v for v in ("best_strategy", "saving_over_direct", "status", "crossover_v_inf")
+                   if v not in dataset]
+        if missing:
+            raise SweepError(f"{args.cube}: not a capsweep cube (lacks {', '.join(missing)})")
+        summary_tables(dataset)  # fail before writing anything if the cube is inconsistent
+        files = _write(lambda: write_summary(dataset, args.out or args.cube.parent), args.out or args.cube.parent)
+    print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
+    return 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status."""
+    parser = _build_parser()
+    args = parser.parse_args(argv)
+    level = {0: logging.WARNING, 1: logging.INFO}.get(getattr(args, "verbose", 0), logging.DEBUG)
+    logging.basicConfig(level=level, format="capsweep: %(message)s")
+    handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize}
+    try:
+        return handlers[args.command](args)
+    except SweepError as err:
+        if args.debug:
+            raise
+        print(f"capsweep: error: {err}", file=sys.stderr)
+        return 2
+    except BrokenPipeError:  # output piped into a reader that closed early, e.g. `| head`
+        sys.stderr.close()
+        return 0

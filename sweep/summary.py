@@ -1,0 +1,252 @@
+"""Where each strategy wins: Markdown and CSV tables built from a cube alone.
+
+Nothing here recomputes physics: every figure is read, counted or located in the Dataset,
+so an old ``.nc`` file summarizes the same way it did when it was written.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+__all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
+
+_MAX_ROWS = 12  # periapsis rows shown per Markdown table; the CSV has them all
+_DAY = 86400.0  # s
+
+
+def _labels(dataset: xr.Dataset) -> tuple[list[str], list[str]]:
+    return ([str(n) for n in dataset["body_name"].values], [str(n) for n in dataset["strategy_name"].values])
+
+
+def _win_runs(best: np.ndarray, v_inf: np.ndarray, names: list[str]) -> list[tuple[str, float, float]]:
+    """Runs of one winner along the v_inf axis: (strategy or 'none', first v_inf, last v_inf)."""
+    runs: list[tuple[str, float, float]] = []
+    for value, speed in zip(best, v_inf, strict=True):
+        label = names[int(value)] if value >= 0 else "none"
+        if runs and runs[-1][0] == label:
+            runs[-1] = (label, runs[-1][1], float(speed))
+        else:
+            runs.append((label, float(speed), float(speed)))
+    return runs
+
+
+def _best_codes(dataset: xr.Dataset) -> xr.DataArray:
+    """best_strategy with its fill restored as -1 (xarray decodes the fill to NaN)."""
+    return dataset["best_strategy"].fillna(-1).astype(int)
+
+
+def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
+    """
+    The summary's tables.
+
+    Returns
+    -------
+    dict of DataFrame
+        ``wins``: runs of one winner along v_inf per body, target and periapsis;
+        ``crossover``: equal-cost arrival speeds; ``shares``: the share of feasible grid
+        points each strategy wins and its largest saving over direct, with where it occurs.
+    """
+    bodies, names = _labels(dataset)
+    v_inf = dataset["v_inf"].values
+    best = _best_codes(dataset).values
+    saving = dataset["saving_over_direct"].values
+    propellant = dataset["propellant_saving"].values
+    time = dataset["time_to_orbit"].values
+    wins, crossover, shares = [], [], []
+    for b, body in enumerate(bodies):
+        for t, target in enumerate(dataset["target_altitude"].values):
+            for p, periapsis in enumerate(dataset["periapsis_altitude"].values):
+                for label, start, stop in _win_runs(best[b, :, t, p], v_inf, names):
+                    wins.append((body, target, periapsis, label, start, stop))
+                crossover.append((
+                    body, target, periapsis,
+                    float(dataset["crossover_v_inf"].values[b, t, p]),
+                    float(dataset["three_burn_crossover_v_inf"].values[b, t, p]),
+                ))
+            block = best[b, :, t, :]
+            feasible = int((block >= 0).sum())
+            for code, name in enumerate(names):
+                mask = block == code
+                count = int(mask.sum())
+                row = [body, target, name, count, count / feasible if feasible else np.nan]
+                if count and name != "direct":
+                    where = np.where(mask, saving[b, :, t, :], -np.inf)
+                    v, p = np.unravel_index(np.argmax(where), where.shape)
+                    row += [saving[b, v, t, p], propellant[b, v, t, p], v_inf[v],
+                            float(dataset["periapsis_altitude"].values[p]), time[code, b, v, t, p] / _DAY]
+                else:
+                    row += [0.0 if count else np.nan, 0.0 if count else np.nan, np.nan, np.nan, np.nan]
+                shares.append(row)
+    return {
+        "wins": pd.DataFrame(wins, columns=["body", "target_altitude_km", "periapsis_altitude_km",
+                                            "strategy", "v_inf_from_km_s", "v_inf_to_km_s"]),
+        "crossover": pd.DataFrame(crossover, columns=["body", "target_altitude_km", "periapsis_altitude_km",
+                                                      "two_burn_crossover_v_inf_km_s",
+                                                      "three_burn_crossover_v_inf_km_s"]),
+        "shares": pd.DataFrame(shares, columns=["body", "target_altitude_km", "strategy", "points_won",
+                                                "share_of_feasible", "max_saving_m_s", "max_propellant_saving_kg",
+                                                "at_v_inf_km_s", "at_periapsis_altitude_km",
+                                                "at_time_to_orbit_days"]),
+    }
+
+
+def _km(value: float) -> str:
+    return f"{value:,.0f} km" if value >= 10 else f"{value:g} km"
+
+
+def _speed(value: float) -> str:
+    return "none" if not np.isfinite(value) else f"{value:.2f} km/s"
+
+
+def _rows_to_show(count: int) -> list[int]:
+    if count <= _MAX_ROWS:
+        return list(range(count))
+    return sorted({int(round(i)) for i in np.linspace(0, count - 1, _MAX_ROWS)})
+
+
+def _status_lines(dataset: xr.Dataset, b: int, names: list[str]) -> list[str]:
+    meanings = dataset["status"].attrs["flag_meanings"].split()
+    lines = []
+    for s, name in enumerate(names):
+        codes, counts = np.unique(dataset["status"].values[s, b], return_counts=True)
+        total = counts.sum()
+        parts = [f"{meanings[c]} {n / total:.0%}" for c, n in zip(codes, counts, strict=True) if c != 0]
+        if parts:
+            lines.append(f"- `{name}` infeasible at part of the grid: {', '.join(parts)}.")
+    return lines
+
+
+def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, shares: pd.DataFrame) -> str:
+    """One plain-language sentence pair for a body and target altitude."""
+    crossing = dataset["crossover_v_inf"].values[b, t]
+    periapses = dataset["periapsis_altitude"].values
+    feasible = np.flatnonzero(dataset["status"].values[1, b, 0, t] == 0)
+    here = shares[(shares.body == body) & (shares.target_altitude_km == target)].set_index("strategy")
+    if here["points_won"].sum() == 0:
+        return f"For a {_km(target)} orbit no strategy is feasible on this grid (see the status lines)."
+    sentences = []
+    lower = [p for p in feasible if periapses[p] < target]
+    if lower:
+        p = lower[0]
+        index = {name: i for i, name in enumerate(_labels(dataset)[1])}
+        delta_v = dataset["delta_v"].values
+        phrases = []
+        for variable, name in (("crossover_v_inf", "two_burn"), ("three_burn_crossover_v_inf", "three_burn")):
+            cross = dataset[variable].values[b, t, p]
+            attrs = dataset[variable].attrs
+            searched = f"{attrs.get('valid_min')} to {attrs.get('valid_max')} km/s"
+            if np.isfinite(cross):
+                phrases.append(f"`{name}` beats direct above {cross:.2f} km/s")
+            elif (dataset["status"].values[index[name], b, 0, t, p] == 0
+                  and (delta_v[index[name], b, :, t, p] < delta_v[index["direct"], b, :, t, p]).all()):
+                phrases.append(f"`{name}` beats direct at every arrival speed ({searched} searched)")
+            else:
+                phrases.append(f"`{name}` does not beat direct between {searched}")
+        sentences.append(f"with periapsis at {_km(periapses[p])} (the lowest feasible on the grid), " + ", ".join(phrases))
+    challengers = here.drop(index="direct")["max_saving_m_s"]
+    if challengers.notna().any() and challengers.max() > 0:
+        name = challengers.idxmax()
+        row = here.loc[name]
+        sentences.append(
+            f"the largest saving over direct is {row.max_saving_m_s:.0f} m/s ({row.max_propellant_saving_kg:.0f} kg "
+            f"of propellant) with `{name}` at {row.at_v_inf_km_s:g} km/s and periapsis "
+            f"{_km(row.at_periapsis_altitude_km)}, reaching orbit {row.at_time_to_orbit_days:.1f} days after arrival"
+        )
+    else:
+        sentences.append("direct capture is never beaten on this grid")
+    won = ", ".join(f"`{name}` {share:.0%}" for name, share in here["share_of_feasible"].items() if share > 0)
+    return f"For a {_km(target)} orbit: " + "; ".join(sentences) + f". Share of feasible points won: {won}."
+
+
+def answers(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) -> dict[str, list[str]]:
+    """Plain-language answer per body: one sentence group per target altitude."""
+    tables = tables or summary_tables(dataset)
+    bodies, _ = _labels(dataset)
+    targets = dataset["target_altitude"].values
+    return {
+        body: [_answer(body, target, dataset, b, t, tables["shares"]) for t, target in enumerate(targets)]
+        for b, body in enumerate(bodies)
+    }
+
+
+def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) -> str:
+    """Markdown report: per body and target, where each strategy wins and by how much."""
+    tables = tables or summary_tables(dataset)
+    bodies, names = _labels(dataset)
+    sentences = answers(dataset, tables)
+    v_inf = dataset["v_inf"].values
+    periapses = dataset["periapsis_altitude"].values
+    best = _best_codes(dataset).values
+    points = int(np.prod([dataset.sizes[d] for d in dataset["best_strategy"].dims]))
+    lines = [
+        f"# {dataset.attrs.get('title', 'capsweep summary')}",
+        "",
+        f"> **Caution.** {dataset.attrs.get('comment', '')}",
+        "",
+        f"{dataset.attrs.get('summary', '')}",
+        "",
+        f"Grid: {len(bodies)} bodies x {v_inf.size} arrival speeds ({v_inf[0]:g} to {v_inf[-1]:g} km/s) x "
+        f"{dataset.sizes['target_altitude']} target altitudes x {periapses.size} periapsis altitudes "
+        f"({periapses[0]:g} to {periapses[-1]:g} km) = {points:,} points, {len(names)} strategies each. "
+        f"Produced by {dataset.attrs.get('source', 'capsweep')}; {dataset.attrs.get('history', '')}.",
+        "",
+        "Strategies: " + dataset.attrs.get("strategies", ""),
+        "",
+    ]
+    for b, body in enumerate(bodies):
+        lines += [
+            f"## {body.capitalize()}",
+            "",
+            f"GM {float(dataset['body_gm'][b]):.6g} m3/s2, mean radius {float(dataset['body_radius'][b]):,.1f} km, "
+            f"lowest safe periapsis {float(dataset['body_safe_periapsis_altitude'][b]):g} km, sphere of influence "
+            f"{float(dataset['sphere_of_influence_radius'][b]):,.0f} km, apoapsis bound "
+            f"{float(dataset['apoapsis_bound'][b]):,.0f} km.",
+            "",
+        ]
+        for t, target in enumerate(dataset["target_altitude"].values):
+            lines += [f"### {body.capitalize()}, {_km(target)} circular orbit", "",
+                      sentences[body][t], ""]
+            shown = _rows_to_show(periapses.size)
+            lines += ["| periapsis | winner along v_inf (km/s) | two_burn = direct at | three_burn = direct at |",
+                      "|---:|---|---:|---:|"]
+            for p in shown:
+                runs = _win_runs(best[b, :, t, p], v_inf, names)
+                text = "; ".join(f"{label} {start:g}-{stop:g}" for label, start, stop in runs)
+                lines.append(
+                    f"| {_km(periapses[p])} | {text} | {_speed(dataset['crossover_v_inf'].values[b, t, p])} | "
+                    f"{_speed(dataset['three_burn_crossover_v_inf'].values[b, t, p])} |"
+                )
+            if len(shown) < periapses.size:
+                lines.append(f"\n(showing {len(shown)} of {periapses.size} periapsis altitudes; all are in wins.csv)")
+            lines.append("")
+        lines += _status_lines(dataset, b, names) + [""]
+    lines += [
+        "## How to read this",
+        "",
+        "Winner: the feasible strategy with the least total delta-v at that grid point; `none` where no "
+        "strategy is feasible. Crossover speeds are roots of the model's cost difference, not grid "
+        "values. Files beside this one: wins.csv, crossover.csv, shares.csv.",
+        "",
+        f"**Caution.** {dataset.attrs.get('comment', '')}",
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def write_summary(dataset: xr.Dataset, folder: str | Path) -> list[Path]:
+    """Write summary.md and the CSV tables into ``folder``; return the paths written."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    tables = summary_tables(dataset)
+    written = []
+    for name, table in tables.items():
+        path = folder / f"{name}.csv"
+        table.to_csv(path, index=False, float_format="%.6g")
+        written.append(path)
+    path = folder / "summary.md"
+    path.write_text(render_summary(dataset, tables), encoding="utf-8")
+    return [path, *written]
