@@ -133,11 +133,12 @@ def _bodies(_: argparse.Namespace) -> int:
 
 def _summarize(args: argparse.Namespace) -> int:
     try:
-        dataset = xr.open_dataset(args.cube)
+        dataset = xr.open_dataset(args.cube, engine="netcdf4")
     except FileNotFoundError as err:
         raise SweepError(f"{args.cube}: cube not found") from err
     except (OSError, ValueError) as err:
-        raise SweepError(f"{args.cube}: not a readable netCDF cube ({err})") from err
+        reason = str(err).splitlines()[0] if str(err) else type(err).__name__
+        raise SweepError(f"{args.cube}: not a readable netCDF cube ({reason})") from err
     with dataset:
         missing = [v for v in ("best_strategy", "saving_over_direct", "status", "crossover_v_inf")
                    if v not in dataset]

@@ -98,9 +98,10 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         "status": (_PER_POINT, arrays.status, _status_attrs()),
         "best_strategy": (DIMENSIONS, arrays.best_strategy, {
             "long_name": "feasible strategy of least total delta-v", "units": "1",
-            "flag_values": np.arange(len(names), dtype=np.int8), "flag_meanings": best_meanings,
-            "_FillValue": np.int8(NO_STRATEGY),
-            "comment": "fill where no strategy is feasible (see status)"}),
+            "flag_values": np.arange(NO_STRATEGY, len(names), dtype=np.int8),
+            "flag_meanings": f"no_feasible_strategy {best_meanings}",
+            "comment": f"{NO_STRATEGY} where no strategy is feasible (see status); otherwise the index "
+            "along the strategy dimension"}),
         "saving_over_direct": (DIMENSIONS, arrays.saving_over_direct, _attrs(
             "m s-1", "delta-v of direct minus delta-v of the best strategy")),
         "propellant_saving": (DIMENSIONS, arrays.propellant_saving, _attrs(

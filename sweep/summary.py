@@ -34,11 +34,6 @@ def _win_runs(best: np.ndarray, v_inf: np.ndarray, names: list[str]) -> list[tup
     return runs
 
 
-def _best_codes(dataset: xr.Dataset) -> xr.DataArray:
-    """best_strategy with its fill restored as -1 (xarray decodes the fill to NaN)."""
-    return dataset["best_strategy"].fillna(-1).astype(int)
-
-
 def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     """
     The summary's tables.
@@ -52,7 +47,7 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     """
     bodies, names = _labels(dataset)
     v_inf = dataset["v_inf"].values
-    best = _best_codes(dataset).values
+    best = dataset["best_strategy"].values
     saving = dataset["saving_over_direct"].values
     propellant = dataset["propellant_saving"].values
     time = dataset["time_to_orbit"].values
@@ -180,7 +175,7 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     sentences = answers(dataset, tables)
     v_inf = dataset["v_inf"].values
     periapses = dataset["periapsis_altitude"].values
-    best = _best_codes(dataset).values
+    best = dataset["best_strategy"].values
     points = int(np.prod([dataset.sizes[d] for d in dataset["best_strategy"].dims]))
     lines = [
         f"# {dataset.attrs.get('title', 'capsweep summary')}",

@@ -60,6 +60,11 @@ class Maneuver(NamedTuple):
     time: np.ndarray
 
 
+def _coast(gm, radius, other_apsis):
+    """Coast from one apsis to the other; none where the ellipse is a circle (next burn at once)."""
+    return np.where(np.equal(radius, other_apsis), 0.0, half_period(gm, radius, other_apsis))
+
+
 def direct_capture(v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike) -> Maneuver:
     r"""
     One burn at periapsis, placed at the target radius, from the hyperbola to the circle.
@@ -130,10 +135,7 @@ def two_burn_capture(
         gm, periapsis_radius, target_radius
     )
     second = np.abs(circular_speed(gm, target_radius) - apsis_speed(gm, target_radius, periapsis_radius))
-    time = np.where(
-        np.equal(periapsis_radius, target_radius), 0.0, half_period(gm, periapsis_radius, target_radius)
-    )
-    return Maneuver((first, second), time)
+    return Maneuver((first, second), _coast(gm, periapsis_radius, target_radius))
 
 
 def three_burn_capture(
@@ -164,7 +166,8 @@ def three_burn_capture(
     -------
     Maneuver
         ``burns = (dv1, dv2, dv3)`` [m/s]; ``time``: half a period of the capture ellipse
-        plus half a period of the ellipse from the apoapsis down to the target [s].
+        plus half a period of the ellipse from the apoapsis down to the target, each zero
+        where that ellipse is a circle (the next burn follows at once) [s].
 
     Notes
     -----
@@ -181,9 +184,7 @@ def three_burn_capture(
         apsis_speed(gm, apoapsis_radius, target_radius) - apsis_speed(gm, apoapsis_radius, periapsis_radius)
     )
     third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius) - circular_speed(gm, target_radius))
-    time = half_period(gm, periapsis_radius, apoapsis_radius) + half_period(
-        gm, target_radius, apoapsis_radius
-    )
+    time = _coast(gm, periapsis_radius, apoapsis_radius) + _coast(gm, target_radius, apoapsis_radius)
     return Maneuver((first, second, third), time)
 
 
@@ -299,7 +300,7 @@ def time_limited_apoapsis(
     )
 
     def time_of(apoapsis):
-        return half_period(gm, periapsis_radius, apoapsis) + half_period(gm, target_radius, apoapsis)
+        return three_burn_capture(0.0, gm, periapsis_radius, target_radius, apoapsis).time
 
     lower = np.maximum(periapsis_radius, target_radius)
     upper = np.maximum(2.0 * np.cbrt(gm * (max_time / (2.0 * np.pi)) ** 2), lower)

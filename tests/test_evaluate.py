@@ -1,0 +1,94 @@
+"""Evaluation over the grid: invariance, feasibility codes, winners and crossovers."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pytest
+
+from sweep import parse_config
+from sweep.evaluate import NO_STRATEGY, evaluate
+from sweep.physics.capture import direct_capture, three_burn_capture, two_burn_capture
+from sweep.strategies import STATUSES, strategy_names
+
+CODE = {status.name: code for code, status in enumerate(STATUSES)}
+DIRECT, TWO, THREE = (strategy_names().index(n) for n in ("direct", "two_burn", "three_burn"))
+
+
+def test_cube_is_bit_identical_for_any_worker_count_and_chunking(small_config_text):
+    config = parse_config(small_config_text)
+    reference = evaluate(config, workers=1)
+    for workers, chunk in ((2, 1 << 20), (4, 8), (3, 1)):
+        other = evaluate(config, workers=workers, points_per_chunk=chunk)
+        for field in dataclasses.fields(reference):
+            a, b = getattr(reference, field.name), getattr(other, field.name)
+            assert a.tobytes() == b.tobytes(), field.name
+
+
+def test_values_match_kernels_at_a_grid_point(small_cube):
+    config, cube = small_cube
+    mars = config.bodies[0]
+    point = cube.isel(body=0, v_inf=5, target_altitude=1, periapsis_altitude=1)
+    v, r_t = config.v_inf[5] * 1e3, mars.radius + config.target_altitude[1] * 1e3
+    r_p = mars.radius + config.periapsis_altitude[1] * 1e3
+    r_a = mars.radius + float(point.intermediate_apoapsis_altitude) * 1e3
+    expected = [sum(direct_capture(v, mars.gm, r_t).burns), sum(two_burn_capture(v, mars.gm, r_p, r_t).burns),
+                sum(three_burn_capture(v, mars.gm, r_p, r_t, r_a).burns)]
+    np.testing.assert_allclose(point.delta_v.values, expected, rtol=1e-9)  # apoapsis stored in km, re-added
+    assert int(point.best_strategy) == int(np.argmin(expected))
+    assert float(point.saving_over_direct) == pytest.approx(expected[0] - min(expected), rel=1e-9)
+    np.testing.assert_allclose(point.delta_v.values, point.burn_delta_v.sum("burn").values, rtol=1e-14)
+
+
+def test_status_codes_follow_the_geometry(small_cube):
+    config, cube = small_cube
+    status = cube.status.values
+    # Mars safe periapsis is 200 km in the catalog: a 20 km periapsis is flagged for the
+    # strategies that use it, never for direct.
+    p20 = list(config.periapsis_altitude).index(20.0)
+    assert (status[TWO, 0, :, :, p20] == CODE["periapsis_below_safe_altitude"]).all()
+    assert (status[THREE, 0, :, :, p20] == CODE["periapsis_below_safe_altitude"]).all()
+    assert (status[DIRECT, 0] == CODE["ok"]).all()
+    assert np.isnan(cube.delta_v.values[TWO, 0, :, :, p20]).all()
+    # Enceladus: half of its sphere of influence does not reach above its surface.
+    assert (status[:, 2] == CODE["sphere_of_influence_too_small"]).all()
+    assert (cube.best_strategy.values[2] == NO_STRATEGY).all()
+
+
+def test_time_limit_bounds_three_burn(small_cube):
+    config, cube = small_cube
+    limit = config.max_time_to_orbit
+    times = cube.time_to_orbit.values[THREE]
+    assert np.nanmax(times) <= limit * (1 + 1e-12)
+    # for Mars the 20-day limit, not the sphere of influence, sets the apoapsis
+    assert float(cube.intermediate_apoapsis_altitude.isel(body=0).max()) < float(cube.apoapsis_bound[0])
+
+
+def test_best_strategy_is_the_cheapest_feasible(small_cube):
+    _, cube = small_cube
+    delta_v = cube.delta_v.values
+    best = cube.best_strategy.values
+    feasible = ~np.isnan(delta_v).all(axis=0)
+    chosen = np.take_along_axis(delta_v, np.where(best < 0, 0, best)[None], axis=0)[0]
+    assert (chosen[feasible] == np.fmin.reduce(delta_v, axis=0)[feasible]).all()
+    assert (cube.saving_over_direct.values[feasible] >= 0).all()
+
+
+def test_crossover_brackets_the_sign_change_on_the_grid(small_cube):
+    # The closed-form crossover must sit between the grid speeds where two_burn - direct
+    # changes sign.
+    config, cube = small_cube
+    gap = cube.delta_v.values[TWO] - cube.delta_v.values[DIRECT]
+    crossover = cube.crossover_v_inf.values
+    checked = 0
+    for b, t, p in np.ndindex(crossover.shape):
+        row = gap[b, :, t, p]
+        if np.isnan(row).any():
+            continue
+        flips = np.flatnonzero(np.diff(np.sign(row)) != 0)
+        if flips.size:
+            i = flips[0]
+            assert config.v_inf[i] <= crossover[b, t, p] <= config.v_inf[i + 1]
+            checked += 1
+    assert checked > 0
