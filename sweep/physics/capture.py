@@ -96,7 +96,7 @@ def direct_capture(v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike) ->
     3590.0
     """
     burn = hyperbolic_periapsis_speed(v_inf, gm, target_radius) - circular_speed(gm, target_radius)
-    return Maneuver((burn,), np.zeros_like(burn))
+    return Maneuver((burn,), np.where(np.isnan(burn), np.nan, 0.0))
 
 
 def two_burn_capture(
