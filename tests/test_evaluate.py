@@ -92,3 +92,30 @@ def test_crossover_brackets_the_sign_change_on_the_grid(small_cube):
             assert config.v_inf[i] <= crossover[b, t, p] <= config.v_inf[i + 1]
             checked += 1
     assert checked > 0
+
+
+def test_crossovers_equal_escape_speed_at_target_and_at_apoapsis(small_cube):
+    # Hand calculation (vis-viva), for r_p < r_t. With A = 2mu/r_p, B = 2mu/r_t, C = 2mu/r_a,
+    # the two apsis speeds of an ellipse (r1, r2) add to sqrt(2mu/r1 + 2mu/r2). So
+    #   two_burn - direct   = sqrt(v^2 + A) - sqrt(v^2 + B) - (sqrt(A + B) - sqrt(2B)),
+    #   three_burn - direct = sqrt(v^2 + A) - sqrt(v^2 + B) - (sqrt(A + C) - sqrt(B + C)),
+    # which vanish at v^2 = B and v^2 = C: the dive pays exactly above the escape speed at the
+    # target radius, and the three-burn sequence above the escape speed at its apoapsis,
+    # whatever the periapsis.
+    config, cube = small_cube
+    gm = cube.body_gm.values[:, None, None]
+    radius = cube.body_radius.values[:, None, None]
+    r_t = (radius + cube.target_altitude.values[None, :, None]) * 1e3
+    below = cube.periapsis_altitude.values[None, None, :] < cube.target_altitude.values[None, :, None]
+    two = cube.crossover_v_inf.values
+    finite = np.isfinite(two) & below
+    assert finite.sum() >= 3
+    np.testing.assert_allclose(  # closed form against closed form: float rounding only
+        two[finite], np.sqrt(2 * gm / r_t).repeat(two.shape[2], 2)[finite] / 1e3, rtol=1e-12
+    )
+    three = cube.three_burn_crossover_v_inf.values
+    r_a = (radius + cube.intermediate_apoapsis_altitude.isel(v_inf=0).values) * 1e3
+    finite = np.isfinite(three) & below
+    assert finite.sum() >= 3
+    # r_a comes back through a km altitude added to a km radius: 1e-9 covers that rounding
+    np.testing.assert_allclose(three[finite], np.sqrt(2 * gm / r_a)[finite] / 1e3, rtol=1e-9)
