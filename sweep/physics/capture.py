@@ -177,6 +177,13 @@ def three_burn_capture(
     ([1]_ Ch. 6; [2]_ Sec. 6.3). With :math:`r_a = r_t \ge r_p` it reduces to
     :func:`two_burn_capture`.
     """
+    burns = _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius)
+    time = _coast(gm, periapsis_radius, apoapsis_radius) + _coast(gm, target_radius, apoapsis_radius)
+    return Maneuver(burns, time)
+
+
+def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius):
+    """The three burn magnitudes of :func:`three_burn_capture`, without the times."""
     first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
         gm, periapsis_radius, apoapsis_radius
     )
@@ -184,13 +191,12 @@ def three_burn_capture(
         apsis_speed(gm, apoapsis_radius, target_radius) - apsis_speed(gm, apoapsis_radius, periapsis_radius)
     )
     third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius) - circular_speed(gm, target_radius))
-    time = _coast(gm, periapsis_radius, apoapsis_radius) + _coast(gm, target_radius, apoapsis_radius)
-    return Maneuver((first, second, third), time)
+    return first, second, third
 
 
 def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius):
     """Total three-burn delta-v at zero arrival speed (the v_inf-free part plus a constant)."""
-    return sum(three_burn_capture(0.0, gm, periapsis_radius, target_radius, apoapsis_radius).burns)
+    return sum(_three_burn_burns(0.0, gm, periapsis_radius, target_radius, apoapsis_radius))
 
 
 def best_intermediate_apoapsis(
