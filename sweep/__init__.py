@@ -11,6 +11,7 @@ __version__ = "0.1.0"
 from sweep.config import load_config, parse_config  # noqa: E402
 from sweep.dataset import build_dataset, open_cube, write_dataset  # noqa: E402
 from sweep.evaluate import evaluate  # noqa: E402
+from sweep.summary import render_summary, write_summary  # noqa: E402
 
 
 def run(config, workers: int | None = None, progress: bool = False):
@@ -25,6 +26,8 @@ __all__ = [
     "load_config",
     "open_cube",
     "parse_config",
+    "render_summary",
     "run",
     "write_dataset",
+    "write_summary",
 ]

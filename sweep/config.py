@@ -102,7 +102,8 @@ class BodyFields(_Model):
 class ConfigFile(_Model):
     """The whole TOML document."""
 
-    name: Annotated[str, Field(min_length=1)]
+    # names the output folder and cube file, so kept to characters safe in a file name
+    name: Annotated[str, Field(min_length=1, max_length=100, pattern=r"^[A-Za-z0-9][A-Za-z0-9._-]*$")]
     description: str = ""
     grid: Grid
     spacecraft: Spacecraft
@@ -230,9 +231,10 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
     v_inf = _axis_values(grid.v_inf, "grid.v_inf", path)
     target = _axis_values(grid.target_altitude, "grid.target_altitude", path)
     periapsis = _axis_values(grid.periapsis_altitude, "grid.periapsis_altitude", path)
+    above_surface = "altitudes must be >= 0 km (above the mean surface)"
     _check_minimum(v_inf, 0.0, "grid.v_inf", path, "arrival speeds must be >= 0 km/s")
-    _check_minimum(target, 0.0, "grid.target_altitude", path, "altitudes must be >= 0 km (above the mean surface)")
-    _check_minimum(periapsis, 0.0, "grid.periapsis_altitude", path, "altitudes must be >= 0 km (above the mean surface)")
+    _check_minimum(target, 0.0, "grid.target_altitude", path, above_surface)
+    _check_minimum(periapsis, 0.0, "grid.periapsis_altitude", path, above_surface)
     if model.crossover.v_inf_min >= model.crossover.v_inf_max:
         raise ConfigError(
             f"{path}: crossover: v_inf_min must be below v_inf_max "

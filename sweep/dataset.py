@@ -14,7 +14,7 @@ import xarray as xr
 from sweep import __version__
 from sweep.catalog import catalog_text
 from sweep.config import SweepConfig
-from sweep.evaluate import NO_STRATEGY, SweepArrays
+from sweep.evaluate import CHALLENGERS, NO_STRATEGY, SweepArrays
 from sweep.grid import DIMENSIONS
 from sweep.strategies import STATUSES, STRATEGIES, strategy_names
 
@@ -111,8 +111,10 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
             comment="NaN where three_burn is infeasible")),
     }
     low, high = config.crossover_range
-    for index, name in enumerate(("crossover_v_inf", "three_burn_crossover_v_inf")):
-        challenger = names[index + 1]
+    variable_of = {"two_burn": "crossover_v_inf", "three_burn": "three_burn_crossover_v_inf"}
+    for index, strategy in enumerate(CHALLENGERS):
+        challenger = names[strategy]
+        name = variable_of[challenger]
         data_vars[name] = (("body", "target_altitude", "periapsis_altitude"), arrays.crossover_v_inf[index], _attrs(
             "km s-1", f"arrival speed at which {challenger} and direct need the same delta-v",
             valid_min=low, valid_max=high,

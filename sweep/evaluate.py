@@ -25,7 +25,7 @@ from sweep.physics.capture import (
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import STATUSES, STRATEGIES, Geometry
+from sweep.strategies import STATUSES, STRATEGIES, Geometry, strategy_names
 
 __all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
 
@@ -34,6 +34,8 @@ logger = logging.getLogger(__name__)
 _KM = 1.0e3  # m per km
 _CODE = {status.name: code for code, status in enumerate(STATUSES)}
 NO_STRATEGY = -1  # best_strategy where no strategy is feasible
+DIRECT, THREE_BURN = strategy_names().index("direct"), strategy_names().index("three_burn")
+CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # order of crossover_v_inf
 
 
 @dataclass(frozen=True)
@@ -93,21 +95,20 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     periapsis_radius = body.radius + periapsis_altitude
     bound = config.apoapsis_fraction * min(body.sphere_of_influence, body.hill_radius)
     upper = np.full(np.broadcast_shapes(target_radius.shape, periapsis_radius.shape), bound)
-    time_capped = np.zeros(upper.shape, dtype=bool)
     if config.max_time_to_orbit is not None:
+        # NaN where even the smallest apoapsis is too slow: fmin keeps the bound, and the
+        # time check below flags the point.
         limit = time_limited_apoapsis(body.gm, periapsis_radius, target_radius, config.max_time_to_orbit)
-        time_capped = np.isnan(limit)
         upper = np.fmin(upper, limit)
     apoapsis = best_intermediate_apoapsis(body.gm, periapsis_radius, target_radius, upper)
     geometry = Geometry(body.gm, periapsis_radius, target_radius, apoapsis)
 
     status, times, constants = [], [], []
     for strategy in STRATEGIES:
-        maneuver = strategy.kernel(np.zeros(1), geometry)
+        maneuver = strategy.kernel(0.0, geometry)
         time = np.broadcast_to(maneuver.time, upper.shape)
-        exceeded = time_capped if strategy.name == "three_burn" else np.zeros(upper.shape, dtype=bool)
-        if config.max_time_to_orbit is not None:
-            exceeded = exceeded | (time > config.max_time_to_orbit)
+        cap = np.inf if config.max_time_to_orbit is None else config.max_time_to_orbit
+        exceeded = time > cap
         code = _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
                              periapsis_radius, bound, exceeded)
         status.append(code)
@@ -118,12 +119,12 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     status = np.stack(status)
     low, high = (speed * _KM for speed in config.crossover_range)
     crossover = []
-    for index in (1, 2):  # two_burn and three_burn against direct (index 0)
-        challenger = STRATEGIES[index]
+    for index in CHALLENGERS:
         speed = equal_cost_v_inf(
-            body.gm, challenger.first_burn_radius(geometry), target_radius, constants[0] - constants[index]
+            body.gm, STRATEGIES[index].first_burn_radius(geometry), target_radius,
+            constants[DIRECT] - constants[index],
         )
-        usable = (status[0] == 0) & (status[index] == 0) & (speed >= low) & (speed <= high)
+        usable = (status[DIRECT] == 0) & (status[index] == 0) & (speed >= low) & (speed <= high)
         crossover.append(np.where(usable, speed, np.nan))
     return BodyPlan(geometry, status, np.stack(times), bound, np.stack(crossover))
 
@@ -145,7 +146,7 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
         "saving_over_direct": per_point,
         "propellant_saving": per_point,
         "intermediate_apoapsis_altitude": per_point,
-        "crossover_v_inf": ((2, nbody, ntarget, nperiapsis), np.float64),
+        "crossover_v_inf": ((len(CHALLENGERS), nbody, ntarget, nperiapsis), np.float64),
         "apoapsis_bound": ((nbody,), np.float64),
         "sphere_of_influence": ((nbody,), np.float64),
         "hill_radius": ((nbody,), np.float64),
@@ -204,9 +205,9 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepCon
     none = np.isinf(best_dv)
     best[none] = NO_STRATEGY
     out.best_strategy[b, speeds] = best
-    np.subtract(totals[0], best_dv, out=out.saving_over_direct[b, speeds])
-    np.subtract(propellant[0], best_propellant, out=out.propellant_saving[b, speeds])
-    three_burn_ok = plan.status[2] == 0
+    np.subtract(totals[DIRECT], best_dv, out=out.saving_over_direct[b, speeds])
+    np.subtract(propellant[DIRECT], best_propellant, out=out.propellant_saving[b, speeds])
+    three_burn_ok = plan.status[THREE_BURN] == 0
     out.intermediate_apoapsis_altitude[b, speeds] = np.where(
         three_burn_ok, (plan.geometry.apoapsis_radius - config.bodies[b].radius) / _KM, np.nan
     )

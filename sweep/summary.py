@@ -117,9 +117,9 @@ def _status_lines(dataset: xr.Dataset, b: int, names: list[str]) -> list[str]:
 
 def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, shares: pd.DataFrame) -> str:
     """One plain-language sentence pair for a body and target altitude."""
-    crossing = dataset["crossover_v_inf"].values[b, t]
     periapses = dataset["periapsis_altitude"].values
-    feasible = np.flatnonzero(dataset["status"].values[1, b, 0, t] == 0)
+    two_burn = _labels(dataset)[1].index("two_burn")
+    feasible = np.flatnonzero(dataset["status"].values[two_burn, b, 0, t] == 0)
     here = shares[(shares.body == body) & (shares.target_altitude_km == target)].set_index("strategy")
     if here["points_won"].sum() == 0:
         return f"For a {_km(target)} orbit no strategy is feasible on this grid (see the status lines)."
@@ -141,7 +141,8 @@ def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, share
                 phrases.append(f"`{name}` beats direct at every arrival speed ({searched} searched)")
             else:
                 phrases.append(f"`{name}` does not beat direct between {searched}")
-        sentences.append(f"with periapsis at {_km(periapses[p])} (the lowest feasible on the grid), " + ", ".join(phrases))
+        lowest = f"with periapsis at {_km(periapses[p])} (the lowest feasible on the grid), "
+        sentences.append(lowest + ", ".join(phrases))
     challengers = here.drop(index="direct")["max_saving_m_s"]
     if challengers.notna().any() and challengers.max() > 0:
         name = challengers.idxmax()

@@ -80,7 +80,8 @@ def test_summarize_rebuilds_from_the_cube_alone(config_file, tmp_path):
     ("argv", "message"),
     [
         (["run", "missing.toml"], r"capsweep: error: missing\.toml: config file not found"),
-        (["check", "{bad}"], r"capsweep: error: .*bad\.toml: grid\.v_inf\.num: Input should be greater than 0 \(got 0\)"),
+        (["check", "{bad}"],
+         r"capsweep: error: .*bad\.toml: grid\.v_inf\.num: Input should be greater than 0 \(got 0\)"),
         (["summarize", "nowhere.nc"], r"capsweep: error: nowhere\.nc: cube not found"),
         (["summarize", "{notcube}"], r"capsweep: error: .*notcube\.nc: not a readable netCDF cube"),
     ],

@@ -73,6 +73,7 @@ def test_custom_body_and_override(small_config_text):
         ("arrival_mass = 1000.0", 'arrival_mass = "heavy"', r"spacecraft\.arrival_mass: Input should be a valid number \(got 'heavy'\)"),
         ("apoapsis_fraction = 0.5", "apoapsis_fraction = 1.5", r"three_burn\.apoapsis_fraction: Input should be less than or equal to 1"),
         ('name = "small-test"\n', "", r"small\.toml: missing required key 'name'"),
+        ('name = "small-test"', 'name = "../up one"', r"small\.toml: name: String should match pattern .* \(got '\.\./up one'\)"),
         ("[spacecraft]", "[spacecraft\n", r"small\.toml: not valid TOML: .*line \d+"),
     ],
 )

@@ -147,7 +147,7 @@ def _speed(state):
     return float(np.hypot(state[2], state[3]))
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _approach(v_inf, mu, r_p):
     """Propagate the inbound hyperbola from far out to its periapsis.
 

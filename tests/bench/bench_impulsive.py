@@ -128,7 +128,7 @@ def loop_inputs(config, sample):
         ))
     speeds = (config.v_inf * 1.0e3).tolist()
     args = []
-    for b, v, t, p in zip(b_idx.tolist(), v_idx.tolist(), t_idx.tolist(), p_idx.tolist()):
+    for b, v, t, p in zip(b_idx.tolist(), v_idx.tolist(), t_idx.tolist(), p_idx.tolist(), strict=True):
         gm, target, periapsis, apoapsis, feasible = per_body[b]
         args.append((gm, speeds[v], target[t][p], periapsis[t][p], apoapsis[t][p], feasible[t][p],
                      exhaust_speed, config.arrival_mass))
@@ -259,7 +259,7 @@ def main(argv=None):
     loop_time, loop_times, results = best_of(options.repeat, lambda: run_loop(args))
     loop_rate = sample_size / loop_time
     report, best_match = check_loop(results, arrays, config, sample)
-    del results, args
+    del results
     loop_ok = all(same for same, _, _ in report.values()) and report["delta_v"][1] < 1e-6 \
         and best_match == sample_size
 
