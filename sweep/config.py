@@ -19,6 +19,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 
 from sweep.catalog import Body, catalog, resolve_body
 from sweep.errors import CatalogError, ConfigError
+from sweep.physics.rocket import STANDARD_GRAVITY
 
 __all__ = [
     "DEMO_CONFIG",
@@ -51,8 +52,12 @@ class Grid(_Model):
     v_inf: list[float] | AxisRange  # km/s
     target_altitude: list[float] | AxisRange  # km
     periapsis_altitude: list[float] | AxisRange  # km
+    # Optional finite-burn axis, one of the two: engine thrust, or initial thrust-to-weight
+    # T / (m0 g0) with g0 = 9.80665 m s-2. Without it the sweep is impulsive only.
+    thrust: list[float] | AxisRange | None = None  # N
+    thrust_to_weight: list[float] | AxisRange | None = None  # 1
 
-    @field_validator("v_inf", "target_altitude", "periapsis_altitude", mode="before")
+    @field_validator("v_inf", "target_altitude", "periapsis_altitude", "thrust", "thrust_to_weight", mode="before")
     @classmethod
     def _axis_shape(cls, value: Any) -> Any:
         if isinstance(value, list):
@@ -88,6 +93,12 @@ class Crossover(_Model):
     v_inf_max: Annotated[float, Field(gt=0)] = 30.0
 
 
+class FiniteBurn(_Model):
+    """Finite-burn model options."""
+
+    steering: Literal["tangential", "inertial"] = "tangential"
+
+
 class BodyFields(_Model):
     """A body defined, or catalog fields overridden, in the config (catalog units)."""
 
@@ -109,6 +120,7 @@ class ConfigFile(_Model):
     spacecraft: Spacecraft
     three_burn: ThreeBurn = ThreeBurn()
     crossover: Crossover = Crossover()
+    finite_burn: FiniteBurn = FiniteBurn()
     bodies: dict[str, BodyFields] = {}
 
 
@@ -127,6 +139,9 @@ class SweepConfig:
     apoapsis_fraction: float  # 1
     max_time_to_orbit: float | None  # s
     crossover_range: tuple[float, float]  # km/s
+    thrust: np.ndarray | None  # N, the finite-burn axis; None for an impulsive-only sweep
+    thrust_given_as: str  # "thrust" or "thrust_to_weight": how the config stated the axis
+    steering: str  # finite-burn steering law
     text: str  # the TOML exactly as read
     path: str  # where it was read from
 
@@ -134,6 +149,11 @@ class SweepConfig:
     def shape(self) -> tuple[int, ...]:
         """Grid shape (body, v_inf, target_altitude, periapsis_altitude)."""
         return (len(self.bodies), self.v_inf.size, self.target_altitude.size, self.periapsis_altitude.size)
+
+    @property
+    def finite_shape(self) -> tuple[int, ...]:
+        """Finite-burn grid shape: :attr:`shape` plus the thrust axis (empty without one)."""
+        return (*self.shape, self.thrust.size) if self.thrust is not None else ()
 
 
 def _key_path(loc: tuple) -> str:
@@ -235,6 +255,7 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
     _check_minimum(v_inf, 0.0, "grid.v_inf", path, "arrival speeds must be >= 0 km/s")
     _check_minimum(target, 0.0, "grid.target_altitude", path, above_surface)
     _check_minimum(periapsis, 0.0, "grid.periapsis_altitude", path, above_surface)
+    thrust, given_as = _thrust_axis(grid, model.spacecraft.arrival_mass, path)
     if model.crossover.v_inf_min >= model.crossover.v_inf_max:
         raise ConfigError(
             f"{path}: crossover: v_inf_min must be below v_inf_max "
@@ -254,9 +275,29 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         if model.three_burn.max_time_to_orbit is None
         else model.three_burn.max_time_to_orbit * _DAY,
         crossover_range=(model.crossover.v_inf_min, model.crossover.v_inf_max),
+        thrust=thrust,
+        thrust_given_as=given_as,
+        steering=model.finite_burn.steering,
         text=text,
         path=path,
     )
+
+
+def _thrust_axis(grid: Grid, arrival_mass: float, path: str) -> tuple[np.ndarray | None, str]:
+    """The thrust axis in newtons, from ``grid.thrust`` or ``grid.thrust_to_weight``."""
+    if grid.thrust is not None and grid.thrust_to_weight is not None:
+        raise ConfigError(f"{path}: grid: give thrust or thrust_to_weight, not both")
+    for key in ("thrust", "thrust_to_weight"):
+        axis = getattr(grid, key)
+        if axis is None:
+            continue
+        values = _axis_values(axis, f"grid.{key}", path)
+        if values.min() <= 0:
+            raise ConfigError(f"{path}: grid.{key}: values must be > 0 (got {float(values.min())!r})")
+        if key == "thrust_to_weight":
+            values = values * arrival_mass * STANDARD_GRAVITY
+        return values, key
+    return None, ""
 
 
 def _resolve_bodies(names: list[str], defined: dict[str, BodyFields], path: str) -> tuple[Body, ...]:

@@ -14,17 +14,19 @@ import xarray as xr
 from sweep import __version__
 from sweep.catalog import catalog_text
 from sweep.config import SweepConfig
-from sweep.evaluate import CHALLENGERS, NO_STRATEGY, SweepArrays
+from sweep.evaluate import CHALLENGERS, SweepArrays
 from sweep.grid import DIMENSIONS
-from sweep.strategies import STATUSES, STRATEGIES, strategy_names
+from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.strategies import NO_STRATEGY, STATUSES, STRATEGIES, strategy_names
 
 __all__ = ["CAUTION", "REFERENCES", "build_dataset", "open_cube", "write_dataset"]
 
 CAUTION = (
-    "Preliminary estimates from a patched-conic, two-body model with impulsive burns. "
-    "Finite-burn gravity losses, oblateness, third-body and atmospheric effects, navigation "
-    "errors and margins are not included. Verify with higher-fidelity propagation and the "
-    "mission's own flight-dynamics review; mission rules and licensed practice decide."
+    "Preliminary estimates from a patched-conic, two-body model with impulsive burns and, where a thrust "
+    "axis is given, simple constant-thrust finite burns. Oblateness, third-body and atmospheric effects, "
+    "steering and ignition optimisation, navigation errors and margins are not included. Verify with "
+    "higher-fidelity propagation and the mission's own flight-dynamics review; mission rules and licensed "
+    "practice decide."
 )
 REFERENCES = (
     "H. D. Curtis, Orbital Mechanics for Engineering Students, 3rd ed., 2014 (Ch. 6, Ch. 8); "
@@ -48,6 +50,79 @@ def _status_attrs() -> dict:
         "flag_meanings": " ".join(status.name for status in STATUSES),
         "comment": "; ".join(f"{code} {s.name}: {s.reason}" for code, s in enumerate(STATUSES)),
     }
+
+
+def _best_attrs(names: list[str], model: str) -> dict:
+    return {
+        "long_name": f"feasible strategy of least total delta-v{model}", "units": "1",
+        "flag_values": np.arange(NO_STRATEGY, len(names), dtype=np.int8),
+        "flag_meanings": "no_feasible_strategy " + " ".join(names),
+        "comment": f"{NO_STRATEGY} where no strategy is feasible; otherwise the index along the strategy dimension",
+    }
+
+
+_FINITE_MODEL = (
+    "planar two-body motion with constant thrust and mass flow T/(Isp g0); {steering} steering (thrust "
+    "against the velocity for burns that lower the orbital energy, along it for burns that raise it{fixed}); "
+    "each ignition half the impulsive-equivalent burn time before the impulsive burn point (the approach "
+    "periapsis, then the apsis of the orbit reached nearest the impulsive burn radius), at once if that moment "
+    "has passed; each burn ends when the specific energy reaches the intended orbit's; RK4 integration"
+)
+
+
+def _finite_variables(config: SweepConfig, finite, names: list[str]) -> tuple[dict, dict]:
+    """Coordinates and data variables of the finite-burn model (thrust axis last)."""
+    dims = ("strategy", *DIMENSIONS, "thrust")
+    per_burn = ("strategy", "burn", *DIMENSIONS, "thrust")
+    model = _FINITE_MODEL.format(
+        steering=config.steering,
+        fixed="" if config.steering == "tangential" else ", held fixed in inertial space along the velocity "
+        "direction the impulsive burn would have",
+    )
+    refs = "Robbins 1966, AIAA J. 4(8):1417 (impulsive approximation); Curtis 2014 Ch. 6, 11"
+    coords = {
+        "thrust": ("thrust", config.thrust, _attrs("N", "engine thrust")),
+        "thrust_to_weight": ("thrust", config.thrust / (config.arrival_mass * STANDARD_GRAVITY), _attrs(
+            "1", "initial thrust-to-weight ratio, thrust / (arrival mass x 9.80665 m s-2)")),
+    }
+
+    def var(dimensions, values, units, long_name, **extra):
+        return (dimensions, values, _attrs(units, long_name, references=refs, comment=model, **extra))
+
+    data = {
+        "finite_delta_v": var(dims, finite.finite_delta_v, "m s-1", "total delta-v with finite burns",
+                              ancillary_variables="finite_status"),
+        "finite_burn_delta_v": var(per_burn, finite.finite_burn_delta_v, "m s-1",
+                                   "delta-v of each finite burn, v_e ln(m_before / m_after)"),
+        "gravity_loss": var(per_burn, finite.gravity_loss, "m s-1",
+                            "finite-burn delta-v minus impulsive delta-v of each burn"),
+        "burn_duration": var(per_burn, finite.burn_duration, "s", "duration of each finite burn"),
+        "burn_propellant_mass": var(per_burn, finite.burn_propellant_mass, "kg", "propellant of each finite burn"),
+        "reached_periapsis_altitude": var(per_burn, finite.reached_periapsis_altitude, "km",
+                                          "periapsis altitude of the orbit reached after each finite burn"),
+        "reached_apoapsis_altitude": var(per_burn, finite.reached_apoapsis_altitude, "km",
+                                         "apoapsis altitude of the orbit reached after each finite burn"),
+        "finite_propellant_mass": var(dims, finite.finite_propellant_mass, "kg",
+                                      "propellant for the whole sequence with finite burns"),
+        "finite_time_to_orbit": var(dims, finite.finite_time_to_orbit, "s",
+                                    "time from the approach periapsis passage to the end of the last finite burn"),
+        "finite_status": (dims, finite.finite_status, {**_status_attrs(),
+                                                       "long_name": "feasibility with finite burns"}),
+        "finite_best_strategy": (dims[1:], finite.finite_best_strategy, _best_attrs(names, " with finite burns")),
+        "finite_saving_over_direct": var(dims[1:], finite.finite_saving_over_direct, "m s-1",
+                                         "finite-burn delta-v of direct minus that of the best strategy"),
+    }
+    v_min, v_max = float(config.v_inf.min()), float(config.v_inf.max())
+    for index, strategy in enumerate(CHALLENGERS):
+        challenger = names[strategy]
+        name = {"two_burn": "finite_crossover_v_inf", "three_burn": "finite_three_burn_crossover_v_inf"}[challenger]
+        data[name] = (("body", "target_altitude", "periapsis_altitude", "thrust"), finite.finite_crossover_v_inf[index],
+                      _attrs("km s-1", f"arrival speed at which {challenger} and direct need the same finite-burn "
+                             "delta-v", valid_min=v_min, valid_max=v_max,
+                             comment=f"first sign change of the cost difference on the grid, refined by regula "
+                             f"falsi (Illinois) on the finite-burn model to 1e-3 m/s; searched {v_min:g} to "
+                             f"{v_max:g} km s-1 (the grid); NaN where no sign change or a strategy is infeasible"))
+    return coords, data
 
 
 def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
@@ -82,7 +157,6 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
             "follows Shen and Tremaine 2008 (AJ 136), prograde orbits bound to about half the Hill radius",
         )),
     }
-    best_meanings = " ".join(names)
     data_vars = {
         "delta_v": (_PER_POINT, arrays.delta_v, _attrs(
             "m s-1", "total delta-v of the capture sequence", references=_VIS_VIVA,
@@ -96,12 +170,7 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         "time_to_orbit": (_PER_POINT, arrays.time_to_orbit, _attrs(
             "s", "time from periapsis arrival to the last burn (on the target orbit)")),
         "status": (_PER_POINT, arrays.status, _status_attrs()),
-        "best_strategy": (DIMENSIONS, arrays.best_strategy, {
-            "long_name": "feasible strategy of least total delta-v", "units": "1",
-            "flag_values": np.arange(NO_STRATEGY, len(names), dtype=np.int8),
-            "flag_meanings": f"no_feasible_strategy {best_meanings}",
-            "comment": f"{NO_STRATEGY} where no strategy is feasible (see status); otherwise the index "
-            "along the strategy dimension"}),
+        "best_strategy": (DIMENSIONS, arrays.best_strategy, _best_attrs(names, "")),
         "saving_over_direct": (DIMENSIONS, arrays.saving_over_direct, _attrs(
             "m s-1", "delta-v of direct minus delta-v of the best strategy")),
         "propellant_saving": (DIMENSIONS, arrays.propellant_saving, _attrs(
@@ -123,6 +192,10 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         ))
     for name, (values, attrs) in body_vars.items():
         data_vars[name] = (("body",), values, attrs)
+    if arrays.finite is not None:
+        finite_coords, finite_vars = _finite_variables(config, arrays.finite, names)
+        coords.update(finite_coords)
+        data_vars.update(finite_vars)
     dataset = xr.Dataset(data_vars, coords=coords)
     dataset.attrs = {
         "Conventions": "CF-1.11",

@@ -17,6 +17,7 @@ from joblib import Parallel, delayed
 from tqdm.auto import tqdm
 
 from sweep.config import SweepConfig
+from sweep.evaluate_finite import FiniteArrays, evaluate_finite, finite_layout
 from sweep.grid import Chunk, chunks
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
@@ -25,7 +26,7 @@ from sweep.physics.capture import (
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import STATUSES, STRATEGIES, Geometry, strategy_names
+from sweep.strategies import STATUSES, STRATEGIES, Geometry, pick_best, strategy_names
 
 __all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
 
@@ -33,7 +34,6 @@ logger = logging.getLogger(__name__)
 
 _KM = 1.0e3  # m per km
 _CODE = {status.name: code for code, status in enumerate(STATUSES)}
-NO_STRATEGY = -1  # best_strategy where no strategy is feasible
 DIRECT, THREE_BURN = strategy_names().index("direct"), strategy_names().index("three_burn")
 CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # order of crossover_v_inf
 
@@ -66,6 +66,7 @@ class SweepArrays:
     apoapsis_bound: np.ndarray
     sphere_of_influence: np.ndarray
     hill_radius: np.ndarray
+    finite: FiniteArrays | None = None  # with a thrust axis only
 
 
 def _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
@@ -155,7 +156,8 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
 
 def estimate_bytes(config: SweepConfig) -> int:
     """Bytes of all output arrays: the memory a run needs and, uncompressed, the cube's size."""
-    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in _layout(config).values())
+    layout = {**_layout(config), **finite_layout(config)}
+    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout.values())
 
 
 def _allocate(config: SweepConfig) -> SweepArrays:
@@ -190,23 +192,10 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepCon
         propellant *= -config.arrival_mass
         out.time_to_orbit[index, b, speeds] = plan.times[index]
         out.status[index, b, speeds] = plan.status[index]
-    # The cheapest feasible strategy, first on ties: a pairwise pass is several times faster
-    # than argmin and take_along_axis over the short strategy axis.
-    totals = out.delta_v[:, b, speeds]
-    propellant = out.propellant_mass[:, b, speeds]
-    best = np.zeros(totals.shape[1:], dtype=np.int8)
-    best_dv = np.where(np.isnan(totals[0]), np.inf, totals[0])
-    best_propellant = propellant[0].copy()
-    for index in range(1, len(STRATEGIES)):
-        better = totals[index] < best_dv
-        best[better] = index
-        np.copyto(best_dv, totals[index], where=better)
-        np.copyto(best_propellant, propellant[index], where=better)
-    none = np.isinf(best_dv)
-    best[none] = NO_STRATEGY
+    best, saving, propellant_saving = pick_best(out.delta_v[:, b, speeds], out.propellant_mass[:, b, speeds], DIRECT)
     out.best_strategy[b, speeds] = best
-    np.subtract(totals[DIRECT], best_dv, out=out.saving_over_direct[b, speeds])
-    np.subtract(propellant[DIRECT], best_propellant, out=out.propellant_saving[b, speeds])
+    out.saving_over_direct[b, speeds] = saving
+    out.propellant_saving[b, speeds] = propellant_saving
     three_burn_ok = plan.status[THREE_BURN] == 0
     out.intermediate_apoapsis_altitude[b, speeds] = np.where(
         three_burn_ok, (plan.geometry.apoapsis_radius - config.bodies[b].radius) / _KM, np.nan
@@ -244,4 +233,6 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     runner = Parallel(n_jobs=min(workers, len(work)), backend="threading", return_as="generator")
     for _ in tqdm(runner(tasks), total=len(work), disable=not progress, unit="chunk", desc="sweep"):
         pass
+    if config.thrust is not None:
+        out.finite = evaluate_finite(config, plans, workers, progress)
     return out

@@ -10,7 +10,18 @@ import numpy as np
 
 from sweep.physics.capture import Maneuver, direct_capture, three_burn_capture, two_burn_capture
 
-__all__ = ["STATUSES", "STRATEGIES", "Geometry", "Status", "Strategy", "strategy_names"]
+__all__ = [
+    "NO_STRATEGY",
+    "STATUSES",
+    "STRATEGIES",
+    "Geometry",
+    "Status",
+    "Strategy",
+    "pick_best",
+    "strategy_names",
+]
+
+NO_STRATEGY = -1  # best strategy where no strategy is feasible
 
 
 class Geometry(NamedTuple):
@@ -32,6 +43,9 @@ class Strategy:
     kernel: Callable[[np.ndarray, Geometry], Maneuver]
     first_burn_radius: Callable[[Geometry], np.ndarray]
     uses_periapsis: bool
+    # For finite burns: where each burn is made, and the apsides of the orbit it aims for.
+    burn_radii: Callable[[Geometry], list[np.ndarray]]
+    orbits: Callable[[Geometry], list[tuple[np.ndarray, np.ndarray]]]
 
 
 STRATEGIES: tuple[Strategy, ...] = (
@@ -42,6 +56,8 @@ STRATEGIES: tuple[Strategy, ...] = (
         kernel=lambda v, g: direct_capture(v, g.gm, g.target_radius),
         first_burn_radius=lambda g: g.target_radius,
         uses_periapsis=False,
+        burn_radii=lambda g: [g.target_radius],
+        orbits=lambda g: [(g.target_radius, g.target_radius)],
     ),
     Strategy(
         name="two_burn",
@@ -51,6 +67,8 @@ STRATEGIES: tuple[Strategy, ...] = (
         kernel=lambda v, g: two_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius),
         first_burn_radius=lambda g: g.periapsis_radius,
         uses_periapsis=True,
+        burn_radii=lambda g: [g.periapsis_radius, g.target_radius],
+        orbits=lambda g: [(g.periapsis_radius, g.target_radius), (g.target_radius, g.target_radius)],
     ),
     Strategy(
         name="three_burn",
@@ -62,6 +80,9 @@ STRATEGIES: tuple[Strategy, ...] = (
         ),
         first_burn_radius=lambda g: g.periapsis_radius,
         uses_periapsis=True,
+        burn_radii=lambda g: [g.periapsis_radius, g.apoapsis_radius, g.target_radius],
+        orbits=lambda g: [(g.periapsis_radius, g.apoapsis_radius), (g.target_radius, g.apoapsis_radius),
+                          (g.target_radius, g.target_radius)],
     ),
 )
 
@@ -94,4 +115,30 @@ STATUSES: tuple[Status, ...] = (
         "time_limit_exceeded",
         "even the smallest admissible sequence takes longer than three_burn.max_time_to_orbit",
     ),
+    # Finite burns only (finite_status); same order as sweep.physics.finite_burn.OUTCOMES[1:].
+    Status("engine_cannot_capture", "finite burn: the craft leaves the sphere of influence before the "
+           "burn reaches the intended orbit's energy"),
+    Status("propellant_exhausted", "finite burn: the whole arrival mass would be burned before the "
+           "intended orbit's energy is reached"),
+    Status("surface_impact", "finite burn: the trajectory, or the orbit finally reached, meets the body's "
+           "mean surface"),
 )
+
+
+def pick_best(totals: np.ndarray, propellant: np.ndarray, direct: int = 0):
+    """
+    Cheapest feasible strategy along axis 0 (first on ties), with the savings over ``direct``.
+
+    A pairwise pass: several times faster than argmin and take_along_axis over the short
+    strategy axis. Returns (best index or -1, saving in delta-v, saving in propellant).
+    """
+    best = np.zeros(totals.shape[1:], dtype=np.int8)
+    best_dv = np.where(np.isnan(totals[0]), np.inf, totals[0])
+    best_propellant = propellant[0].copy()
+    for index in range(1, totals.shape[0]):
+        better = totals[index] < best_dv
+        best[better] = index
+        np.copyto(best_dv, totals[index], where=better)
+        np.copyto(best_propellant, propellant[index], where=better)
+    best[np.isinf(best_dv)] = NO_STRATEGY
+    return best, totals[direct] - best_dv, propellant[direct] - best_propellant

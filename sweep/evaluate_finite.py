@@ -1,0 +1,265 @@
+"""Evaluate every strategy with a finite-thrust engine over the grid plus its thrust axis.
+
+Finite burns are compute-bound (each point integrates its burns), so chunks run in worker
+processes and return their arrays; the parent places them. Chunks depend on the grid alone,
+so the cube is bit-identical for any number of workers. The arrival speed at which a
+low-periapsis strategy and ``direct`` cost the same is then found per (body, target,
+periapsis, thrust) by bracketing on the grid and refining with the Illinois variant of
+regula falsi on the finite-burn model itself.
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+
+import numpy as np
+from joblib import Parallel, delayed
+from tqdm.auto import tqdm
+
+from sweep.config import SweepConfig
+from sweep.grid import chunks
+from sweep.physics.finite_burn import OUTCOMES, fly_capture
+from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.strategies import STATUSES, STRATEGIES, Geometry, pick_best, strategy_names
+
+__all__ = ["FiniteArrays", "evaluate_finite", "finite_layout"]
+
+logger = logging.getLogger(__name__)
+
+_KM = 1.0e3  # m per km
+_CODE = {status.name: code for code, status in enumerate(STATUSES)}
+_OUTCOME_CODE = np.array([0] + [_CODE[name] for name in OUTCOMES[1:]], dtype=np.int8)
+_BURNS = max(strategy.burns for strategy in STRATEGIES)
+_DIRECT = strategy_names().index("direct")
+_CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")
+_ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
+_ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
+
+
+@dataclass
+class FiniteArrays:
+    """Finite-burn results in cube order, with the thrust axis last (units in sweep.dataset)."""
+
+    finite_delta_v: np.ndarray
+    finite_burn_delta_v: np.ndarray
+    gravity_loss: np.ndarray
+    burn_duration: np.ndarray
+    burn_propellant_mass: np.ndarray
+    reached_periapsis_altitude: np.ndarray
+    reached_apoapsis_altitude: np.ndarray
+    finite_propellant_mass: np.ndarray
+    finite_time_to_orbit: np.ndarray
+    finite_status: np.ndarray
+    finite_best_strategy: np.ndarray
+    finite_saving_over_direct: np.ndarray
+    finite_crossover_v_inf: np.ndarray
+
+
+def finite_layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
+    """Shape and dtype of every finite-burn output array (empty for an impulsive sweep)."""
+    if config.thrust is None:
+        return {}
+    shape = config.finite_shape
+    count = len(STRATEGIES)
+    per_burn = ((count, _BURNS, *shape), np.float64)
+    per_strategy = ((count, *shape), np.float64)
+    nbody, _, ntarget, nperiapsis, nthrust = shape
+    return {
+        "finite_delta_v": per_strategy,
+        "finite_burn_delta_v": per_burn,
+        "gravity_loss": per_burn,
+        "burn_duration": per_burn,
+        "burn_propellant_mass": per_burn,
+        "reached_periapsis_altitude": per_burn,
+        "reached_apoapsis_altitude": per_burn,
+        "finite_propellant_mass": per_strategy,
+        "finite_time_to_orbit": per_strategy,
+        "finite_status": ((count, *shape), np.int8),
+        "finite_best_strategy": (shape, np.int8),
+        "finite_saving_over_direct": (shape, np.float64),
+        "finite_crossover_v_inf": ((len(_CHALLENGERS), nbody, ntarget, nperiapsis, nthrust), np.float64),
+    }
+
+
+@dataclass(frozen=True)
+class _BodyInputs:
+    """What a worker needs of one body: constants (SI) and the impulsive plan's geometry."""
+
+    gm: float
+    radius: float
+    soi: float
+    periapsis_radius: np.ndarray  # (1, P)
+    target_radius: np.ndarray  # (T, 1)
+    apoapsis_radius: np.ndarray  # (T, P)
+    status: np.ndarray  # (S, T, P)
+
+
+def _fly(strategy, gm, radius, soi, geometry: Geometry, speed, thrust, exhaust_speed, mass, steering):
+    """Fly one strategy for flat arrays of points; geometry arrays are flat too."""
+    maneuver = strategy.kernel(speed, geometry)
+    energies = [-gm / (a + b) for a, b in strategy.orbits(geometry)]
+    return fly_capture(
+        gm, radius, soi, speed, strategy.first_burn_radius(geometry), strategy.burn_radii(geometry),
+        energies, list(maneuver.burns), thrust, exhaust_speed, mass, steering,
+    ), maneuver
+
+
+def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steering) -> dict[str, np.ndarray]:
+    """All strategies for one body, a run of arrival speeds, every target, periapsis and thrust."""
+    shape = (speeds_km.size, body.target_radius.shape[0], body.periapsis_radius.shape[1], thrust.size)
+    out = {name: np.full((len(STRATEGIES), _BURNS, *shape), np.nan) for name in (
+        "finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass",
+        "reached_periapsis_altitude", "reached_apoapsis_altitude")}
+    out.update({name: np.full((len(STRATEGIES), *shape), np.nan) for name in (
+        "finite_delta_v", "finite_propellant_mass", "finite_time_to_orbit")})
+    out["finite_status"] = np.zeros((len(STRATEGIES), *shape), dtype=np.int8)
+    grids = np.meshgrid(speeds_km * _KM, np.arange(shape[1]), np.arange(shape[2]), thrust, indexing="ij")
+    speed, target_index, periapsis_index, thrusts = (g.ravel() for g in grids)
+    for s, strategy in enumerate(STRATEGIES):
+        code = body.status[s][target_index, periapsis_index]
+        out["finite_status"][s].ravel()[:] = code
+        ok = np.flatnonzero(code == 0)
+        t, p = target_index[ok], periapsis_index[ok]
+        geometry = Geometry(body.gm, body.periapsis_radius[0, p], body.target_radius[t, 0],
+                            body.apoapsis_radius[t, p])
+        result, maneuver = _fly(strategy, body.gm, body.radius, body.soi, geometry, speed[ok], thrusts[ok],
+                                exhaust_speed, mass, steering)
+        flown = result.outcome == 0
+        out["finite_status"][s].ravel()[ok] = _OUTCOME_CODE[result.outcome]
+        remaining = np.full(ok.size, float(mass))
+        for k in range(_BURNS):
+            values = dict.fromkeys(("finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass"),
+                                   np.zeros(ok.size))
+            if k < strategy.burns:
+                burn = result.delta_v[k]
+                spent = remaining * -np.expm1(-burn / exhaust_speed)
+                remaining = remaining - spent
+                values = {
+                    "finite_burn_delta_v": burn,
+                    "gravity_loss": burn - maneuver.burns[k],
+                    "burn_duration": result.duration[k],
+                    "burn_propellant_mass": spent,
+                    "reached_periapsis_altitude": (result.periapsis_radius[k] - body.radius) / _KM,
+                    "reached_apoapsis_altitude": (result.apoapsis_radius[k] - body.radius) / _KM,
+                }
+            for name, value in values.items():
+                out[name][s, k].ravel()[ok] = np.where(flown, value, np.nan)
+        total = np.where(flown, result.delta_v.sum(axis=0), np.nan)
+        out["finite_delta_v"][s].ravel()[ok] = total
+        out["finite_propellant_mass"][s].ravel()[ok] = mass * -np.expm1(-total / exhaust_speed)
+        out["finite_time_to_orbit"][s].ravel()[ok] = np.where(flown, result.time, np.nan)
+    best, saving, _ = pick_best(out["finite_delta_v"], out["finite_propellant_mass"])
+    out["finite_best_strategy"], out["finite_saving_over_direct"] = best, saving
+    return out
+
+
+def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteArrays) -> None:
+    """Equal-cost arrival speeds per (body, target, periapsis, thrust), in place, km/s."""
+    exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
+    v_grid = config.v_inf * _KM
+    arrays.finite_crossover_v_inf[...] = np.nan
+    for slot, challenger in enumerate(_CHALLENGERS):
+        gap = arrays.finite_delta_v[challenger] - arrays.finite_delta_v[_DIRECT]  # (B, V, T, P, F)
+        flips = (np.sign(gap[:, :-1]) * np.sign(gap[:, 1:]) < 0)
+        has = flips.any(axis=1)
+        first = np.argmax(flips, axis=1)  # (B, T, P, F)
+        b, t, p, f = np.nonzero(has)
+        if b.size == 0:
+            continue
+        i = first[b, t, p, f]
+        low, high = v_grid[i], v_grid[i + 1]
+        gap_low, gap_high = gap[b, i, t, p, f], gap[b, i + 1, t, p, f]
+        inputs = dict(
+            gm=np.array([bodies[k].gm for k in b]), radius=np.array([bodies[k].radius for k in b]),
+            soi=np.array([bodies[k].soi for k in b]),
+            geometry=Geometry(
+                np.array([bodies[k].gm for k in b]),
+                np.array([bodies[k].periapsis_radius[0, q] for k, q in zip(b, p, strict=True)]),
+                np.array([bodies[k].target_radius[q, 0] for k, q in zip(b, t, strict=True)]),
+                np.array([bodies[k].apoapsis_radius[u, q] for k, u, q in zip(b, t, p, strict=True)]),
+            ),
+            thrust=config.thrust[f],
+        )
+        inputs["geometry"] = tuple(inputs["geometry"])
+        root = _illinois(
+            lambda v, index, inputs=inputs, c=challenger: _gap(v, index, inputs, c, exhaust_speed, config),
+            low, high, gap_low, gap_high,
+        )
+        arrays.finite_crossover_v_inf[slot, b, t, p, f] = root / _KM
+
+
+def _gap(speed, index, inputs, challenger, exhaust_speed, config):
+    """Finite cost of ``challenger`` minus that of direct, for the brackets ``index``."""
+    geometry = Geometry(*(value[index] for value in inputs["geometry"]))
+    totals = []
+    for strategy in (challenger, _DIRECT):
+        result, _ = _fly(STRATEGIES[strategy], inputs["gm"][index], inputs["radius"][index],
+                         inputs["soi"][index], geometry, speed, inputs["thrust"][index], exhaust_speed,
+                         config.arrival_mass, config.steering)
+        totals.append(np.where(result.outcome == 0, result.delta_v.sum(axis=0), np.nan))
+    return totals[0] - totals[1]
+
+
+def _illinois(function, low, high, f_low, f_high):
+    """
+    Vectorized regula falsi, Illinois variant (an end kept twice running has its value halved).
+
+    ``function(x, index)`` evaluates brackets ``index`` at ``x``. Returns the roots; NaN where
+    the model fails inside a bracket or the iterations run out.
+    """
+    low, high, f_low, f_high = (np.array(a, dtype=float) for a in (low, high, f_low, f_high))
+    root = np.full(low.shape, np.nan)
+    kept = np.zeros(low.shape, dtype=np.int8)  # +1: low end moved last time, -1: high end
+    active = np.arange(low.size)
+    for _ in range(_ROOT_STEPS):
+        if active.size == 0:
+            break
+        a, b, fa, fb = low[active], high[active], f_low[active], f_high[active]
+        guess = b - fb * (b - a) / (fb - fa)
+        value = function(guess, active)
+        failed = np.isnan(value)
+        done = ~failed & ((np.abs(value) < _ROOT_TOLERANCE) | (np.abs(b - a) < _ROOT_TOLERANCE))
+        root[active[done]] = guess[done]
+        move_low = np.sign(value) == np.sign(fa)
+        last = kept[active]
+        low[active] = np.where(move_low, guess, a)
+        high[active] = np.where(move_low, b, guess)
+        f_low[active] = np.where(move_low, value, np.where(last == -1, 0.5 * fa, fa))
+        f_high[active] = np.where(move_low, np.where(last == 1, 0.5 * fb, fb), value)
+        kept[active] = np.where(move_low, 1, -1)
+        active = active[~(done | failed)]
+    return root
+
+
+def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
+                    points_per_chunk: int = 1 << 15) -> FiniteArrays:
+    """Run every strategy with the finite-burn model; ``plans`` are the impulsive per-body plans."""
+    out = FiniteArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype) in finite_layout(config).items()})
+    bodies = [
+        _BodyInputs(body.gm, body.radius, body.sphere_of_influence, plan.geometry.periapsis_radius,
+                    plan.geometry.target_radius, np.asarray(plan.geometry.apoapsis_radius), plan.status)
+        for body, plan in zip(config.bodies, plans, strict=True)
+    ]
+    exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
+    nthrust = config.thrust.size
+    work = chunks(config.shape, max(points_per_chunk // nthrust, 1))
+    logger.info("finite burns: %d points in %d chunks on %d processes", int(np.prod(config.finite_shape)),
+                len(work), workers)
+    tasks = (delayed(_run_chunk)(bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop], config.thrust,
+                                 exhaust_speed, config.arrival_mass, config.steering) for c in work)
+    runner = Parallel(n_jobs=min(workers, len(work)), backend="loky" if workers > 1 else "sequential",
+                      return_as="generator")
+    for chunk, result in tqdm(zip(work, runner(tasks), strict=True), total=len(work), disable=not progress,
+                              unit="chunk", desc="finite burns"):
+        speeds = slice(chunk.v_inf_start, chunk.v_inf_stop)
+        for name, values in result.items():
+            target = getattr(out, name)
+            if name in ("finite_best_strategy", "finite_saving_over_direct"):
+                target[chunk.body, speeds] = values
+            elif values.ndim == 6:
+                target[:, :, chunk.body, speeds] = values
+            else:
+                target[:, chunk.body, speeds] = values
+    _crossovers(config, bodies, out)
+    return out

@@ -1,0 +1,408 @@
+r"""Finite-thrust capture sequences: planar two-body motion with constant thrust, integrated
+for many points at once.
+
+Every point of a batch is advanced together with numpy arrays by a classical fourth-order
+Runge-Kutta scheme, each point with its own step size and its own stop condition. Coasts
+between burns are Keplerian and solved analytically. SI units throughout.
+
+Model
+-----
+* Planar two-body motion, point-mass gravity: :math:`\ddot{\mathbf r} = -\mu \mathbf r / r^3
+  + (T/m)\,\hat{\mathbf u}`, constant thrust :math:`T`, mass flow :math:`\dot m = -T/v_e`,
+  :math:`v_e = I_{sp} g_0`.
+* Steering ``"tangential"``: :math:`\hat{\mathbf u} = \pm \hat{\mathbf v}`, against the velocity
+  for a burn that lowers the orbital energy (braking), along it for a burn that raises it.
+  ``"inertial"``: a fixed direction, the velocity direction the impulsive burn would have at
+  its apsis (with the same sign rule); used to compare with Robbins' estimate.
+* Centring rule: each burn's ignition is placed half of its *impulsive-equivalent* burn time
+  :math:`t_b = (m v_e / T)(1 - e^{-\Delta v_{imp}/v_e})` before the apsis where the impulsive
+  burn would be made (the approach periapsis for the first burn; for later burns the apsis of
+  the orbit actually reached that lies nearest the impulsive burn radius). Where that moment
+  has already passed when the previous burn ends, the burn starts at once.
+* A burn ends when the orbit's specific energy :math:`v^2/2 - \mu/r` reaches that of the
+  intended orbit; the orbit then reached (periapsis, apoapsis) is reported as it is.
+
+References
+----------
+.. [1] H. M. Robbins, "An analytical study of the impulsive approximation", AIAA Journal
+   4(8):1417-1423, 1966, doi:10.2514/3.3687.
+.. [2] H. D. Curtis, *Orbital Mechanics for Engineering Students*, 3rd ed. Oxford, UK:
+   Butterworth-Heinemann, 2014. Ch. 3 (Kepler's equation), Ch. 4 (elements from state),
+   Ch. 6 (finite burns, rocket equation).
+.. [3] E. Hairer, S. P. Norsett and G. Wanner, *Solving Ordinary Differential Equations I*,
+   2nd ed. Berlin: Springer, 1993, Sec. II.1 (the classical Runge-Kutta method).
+"""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from sweep.physics.conics import hyperbolic_periapsis_speed
+
+__all__ = [
+    "OUTCOMES",
+    "FiniteCapture",
+    "fly_capture",
+    "impulsive_burn_time",
+]
+
+STEPS_PER_BURN = 64  # RK4 steps at least, across a burn's impulsive-equivalent duration
+STEPS_PER_ORBIT = 1000  # and at most this fraction of the local circular period per step
+_NEWTON_STEPS = 5  # end-of-burn refinement: quadratic convergence from a secant start
+_KEPLER_STEPS = 40  # Newton steps on Kepler's equation (converges in < 10 for e < 0.999)
+_MAX_STEPS_FACTOR = 50  # a burn may take this many times its expected steps before giving up
+
+# Outcome codes of a sequence (index = code).
+OUTCOMES = ("ok", "engine_cannot_capture", "propellant_exhausted", "surface_impact")
+
+
+class FiniteCapture(NamedTuple):
+    """Per-burn arrays have shape (burns, n); per-sequence arrays shape (n,). SI units."""
+
+    delta_v: np.ndarray  # m/s, v_e ln(m_before / m_after) of each burn
+    duration: np.ndarray  # s
+    periapsis_radius: np.ndarray  # m, of the orbit reached after each burn
+    apoapsis_radius: np.ndarray  # m
+    time: np.ndarray  # s, from the approach periapsis passage to the end of the last burn
+    outcome: np.ndarray  # int8, index into OUTCOMES
+
+
+def impulsive_burn_time(delta_v: ArrayLike, mass: ArrayLike, thrust: ArrayLike, exhaust_speed: ArrayLike):
+    r"""
+    Burn time at constant thrust to deliver ``delta_v`` from ``mass``.
+
+    Returns
+    -------
+    time : numeric
+        :math:`t_b = (m v_e / T)(1 - e^{-\Delta v / v_e})` ([2]_ Ch. 6). [s]
+    """
+    return np.asarray(mass) * exhaust_speed / thrust * -np.expm1(-np.asarray(delta_v) / exhaust_speed)
+
+
+class _Engine(NamedTuple):
+    """Per-point parameters of one burn (arrays of equal length); ``ux, uy`` None = tangential."""
+
+    gm: np.ndarray
+    thrust: np.ndarray
+    mass: np.ndarray  # at ignition
+    mass_flow: np.ndarray
+    sign: np.ndarray  # +1 raises the orbital energy, -1 lowers it
+    ux: np.ndarray | None = None
+    uy: np.ndarray | None = None
+
+    def take(self, index: np.ndarray) -> _Engine:
+        return _Engine(*(None if value is None else value[index] for value in self))
+
+
+def _energy(x, y, vx, vy, gm):
+    return 0.5 * (vx * vx + vy * vy) - gm / np.sqrt(x * x + y * y)
+
+
+def _apsides(x, y, vx, vy, gm):
+    """Periapsis and apoapsis radii of the osculating conic (apoapsis inf when unbound)."""
+    r = np.sqrt(x * x + y * y)
+    energy = 0.5 * (vx * vx + vy * vy) - gm / r
+    h = x * vy - y * vx
+    eccentricity = np.sqrt(np.maximum(1.0 + 2.0 * energy * h * h / (gm * gm), 0.0))
+    periapsis = h * h / (gm * (1.0 + eccentricity))
+    with np.errstate(divide="ignore"):
+        apoapsis = np.where(eccentricity < 1.0, h * h / (gm * (1.0 - eccentricity)), np.inf)
+    return periapsis, apoapsis
+
+
+def _accelerations(x, y, vx, vy, tau, p: _Engine):
+    """Two-body gravity plus thrust at time ``tau`` after ignition."""
+    r2 = x * x + y * y
+    gravity = -p.gm / (r2 * np.sqrt(r2))
+    thrust_acceleration = p.thrust / (p.mass - p.mass_flow * tau)
+    if p.ux is None:
+        scale = p.sign * thrust_acceleration / np.sqrt(vx * vx + vy * vy)
+        return gravity * x + vx * scale, gravity * y + vy * scale
+    return gravity * x + p.ux * thrust_acceleration, gravity * y + p.uy * thrust_acceleration
+
+
+def _rk4(state, tau, dt, p):
+    """One classical Runge-Kutta step ([3]_) of every point with its own ``dt``."""
+    x, y, vx, vy = state
+    half = 0.5 * dt
+    ax1, ay1 = _accelerations(x, y, vx, vy, tau, p)
+    x2, y2, vx2, vy2 = x + half * vx, y + half * vy, vx + half * ax1, vy + half * ay1
+    ax2, ay2 = _accelerations(x2, y2, vx2, vy2, tau + half, p)
+    x3, y3, vx3, vy3 = x + half * vx2, y + half * vy2, vx + half * ax2, vy + half * ay2
+    ax3, ay3 = _accelerations(x3, y3, vx3, vy3, tau + half, p)
+    x4, y4, vx4, vy4 = x + dt * vx3, y + dt * vy3, vx + dt * ax3, vy + dt * ay3
+    ax4, ay4 = _accelerations(x4, y4, vx4, vy4, tau + dt, p)
+    sixth = dt / 6.0
+    return (
+        x + sixth * (vx + 2.0 * (vx2 + vx3) + vx4),
+        y + sixth * (vy + 2.0 * (vy2 + vy3) + vy4),
+        vx + sixth * (ax1 + 2.0 * (ax2 + ax3) + ax4),
+        vy + sixth * (ay1 + 2.0 * (ay2 + ay3) + ay4),
+    )
+
+
+def _step_size(expected_time, radius, gm):
+    local_period = 2.0 * np.pi * np.sqrt(radius**3 / gm)
+    return np.minimum(expected_time / STEPS_PER_BURN, local_period / STEPS_PER_ORBIT)
+
+
+def _coast_back(state, duration, gm):
+    """Propagate the approach backwards by ``duration`` (>= 0) with the engine off (RK4)."""
+    x, y, vx, vy = (np.array(s, dtype=float) for s in state)
+    radius = np.sqrt(x * x + y * y)
+    steps = np.ceil(duration / _step_size(np.inf, radius, gm)).astype(np.int64)
+    dt = -duration / np.maximum(steps, 1)
+    off = _Engine(gm, np.zeros_like(gm), np.ones_like(gm), np.zeros_like(gm), np.ones_like(gm))
+    for step in range(int(steps.max(initial=0))):
+        index = np.flatnonzero(steps > step)
+        new = _rk4((x[index], y[index], vx[index], vy[index]), 0.0, dt[index], off.take(index))
+        for target, values in zip((x, y, vx, vy), new, strict=True):
+            target[index] = values
+    return x, y, vx, vy
+
+
+def _solve_kepler(mean_anomaly, eccentricity):
+    """Eccentric anomaly from Kepler's equation M = E - e sin E by Newton's method ([2]_ Ch. 3)."""
+    anomaly = np.where(eccentricity < 0.8, mean_anomaly, np.pi)
+    for _ in range(_KEPLER_STEPS):
+        step = (anomaly - eccentricity * np.sin(anomaly) - mean_anomaly) / (1.0 - eccentricity * np.cos(anomaly))
+        anomaly = anomaly - step
+        if np.all(np.abs(step) < 1e-14):
+            break
+    return anomaly
+
+
+def _coast_to_ignition(state, gm, burn_radius, half_burn):
+    """
+    Coast along the (elliptic) orbit to ``half_burn`` before the apsis nearest ``burn_radius``.
+
+    Returns the state at ignition, the coast time, and the unit velocity direction at that
+    apsis (for inertially fixed steering). Near-circular orbits (e < 1e-9) ignite at once.
+    """
+    x, y, vx, vy = state
+    r = np.sqrt(x * x + y * y)
+    v2 = vx * vx + vy * vy
+    radial = x * vx + y * vy
+    a = 1.0 / (2.0 / r - v2 / gm)
+    ex = ((v2 - gm / r) * x - radial * vx) / gm
+    ey = ((v2 - gm / r) * y - radial * vy) / gm
+    e = np.sqrt(ex * ex + ey * ey)
+    circular = e < 1e-9
+    omega = np.arctan2(ey, ex)
+    true_anomaly = np.arctan2(y, x) - omega
+    root = np.sqrt(np.maximum(1.0 - e * e, 0.0))
+    eccentric = np.arctan2(root * np.sin(true_anomaly), e + np.cos(true_anomaly))
+    mean_now = eccentric - e * np.sin(eccentric)
+    motion = np.sqrt(gm / a**3)
+    at_apoapsis = np.abs(a * (1 + e) - burn_radius) < np.abs(a * (1 - e) - burn_radius)
+    mean_apsis = np.where(at_apoapsis, np.pi, 0.0)
+    to_apsis = np.mod(mean_apsis - mean_now, 2.0 * np.pi) / motion
+    coast = np.where(circular, 0.0, np.maximum(to_apsis - half_burn, 0.0))
+    eccentric = _solve_kepler(mean_now + motion * coast, e)
+    cos_e, sin_e = np.cos(eccentric), np.sin(eccentric)
+    px, py = a * (cos_e - e), a * root * sin_e
+    radius = a * (1.0 - e * cos_e)
+    speed_scale = np.sqrt(gm * a) / radius
+    qx, qy = -speed_scale * sin_e, speed_scale * root * cos_e
+    cw, sw = np.cos(omega), np.sin(omega)
+    new = (cw * px - sw * py, sw * px + cw * py, cw * qx - sw * qy, sw * qx + cw * qy)
+    new = tuple(np.where(circular, s, n) for s, n in zip(state, new, strict=True))
+    apsis_angle = omega + np.where(at_apoapsis, np.pi, 0.0)
+    direction = (-np.sin(apsis_angle), np.cos(apsis_angle))
+    return new, coast, direction
+
+
+def _burn(state, p: _Engine, target_energy, expected_time, limits):
+    """
+    Integrate one burn for every point until its energy reaches ``target_energy``.
+
+    Returns the final state, the burn duration and an outcome code per point.
+    """
+    x, y, vx, vy = (np.array(s, dtype=float) for s in state)
+    duration = np.zeros(x.size)
+    outcome = np.zeros(x.size, dtype=np.int8)
+    active = np.flatnonzero(np.abs(target_energy - _energy(x, y, vx, vy, p.gm)) > 1e-12 * np.abs(target_energy))
+    dt_all = _step_size(np.maximum(expected_time, 1e-3), np.sqrt(x * x + y * y), p.gm)
+    max_steps = _MAX_STEPS_FACTOR * (int(np.ceil((expected_time / dt_all).max(initial=0))) + STEPS_PER_BURN)
+    for _ in range(max_steps):
+        if active.size == 0:
+            break
+        q = p.take(active)
+        start = (x[active], y[active], vx[active], vy[active])
+        tau, dt, goal = duration[active], dt_all[active], target_energy[active]
+        new = _rk4(start, tau, dt, q)
+        new_energy = _energy(*new, q.gm)
+        crossed = q.sign * (new_energy - goal) >= 0.0
+        if crossed.any():
+            c = np.flatnonzero(crossed)
+            end, step = _finish(tuple(s[c] for s in start), tau[c], dt[c], goal[c], new_energy[c], q.take(c))
+            for target, values in zip((x, y, vx, vy), end, strict=True):
+                target[active[c]] = values
+            duration[active[c]] = tau[c] + step
+        keep = np.flatnonzero(~crossed)
+        ids = active[keep]
+        nx, ny, nvx, nvy = (s[keep] for s in new)
+        x[ids], y[ids], vx[ids], vy[ids] = nx, ny, nvx, nvy
+        duration[ids] = tau[keep] + dt[keep]
+        r = np.sqrt(nx * nx + ny * ny)
+        escaped = (r > limits["soi"][ids]) & (nx * nvx + ny * nvy > 0)
+        exhausted = ~escaped & (duration[ids] >= limits["max_time"][ids])
+        impact = ~escaped & ~exhausted & (r < limits["body_radius"][ids])
+        outcome[ids[escaped]] = OUTCOMES.index("engine_cannot_capture")
+        outcome[ids[exhausted]] = OUTCOMES.index("propellant_exhausted")
+        outcome[ids[impact]] = OUTCOMES.index("surface_impact")
+        active = ids[~(escaped | impact | exhausted)]
+    outcome[active] = OUTCOMES.index("propellant_exhausted")  # still burning at the step cap
+    return (x, y, vx, vy), duration, outcome
+
+
+def _finish(start, tau, dt, goal, end_energy, q: _Engine):
+    """The partial step, within (0, dt], that ends on the target energy (secant, then Newton)."""
+    start_energy = _energy(*start, q.gm)
+    step = dt * (goal - start_energy) / (end_energy - start_energy)
+    for _ in range(_NEWTON_STEPS):
+        trial = _rk4(start, tau, step, q)
+        step = np.clip(step + (goal - _energy(*trial, q.gm)) / _energy_rate(trial, tau + step, q), 0.0, dt)
+    return _rk4(start, tau, step, q), step
+
+
+def _energy_rate(state, tau, p: _Engine):
+    """d(energy)/dt = (T/m) u . v: the thrust's power per unit mass (gravity does no net work)."""
+    x, y, vx, vy = state
+    thrust_acceleration = p.thrust / (p.mass - p.mass_flow * tau)
+    if p.ux is None:
+        return p.sign * thrust_acceleration * np.sqrt(vx * vx + vy * vy)
+    return thrust_acceleration * (p.ux * vx + p.uy * vy)
+
+
+def fly_capture(
+    gm: ArrayLike,
+    body_radius: ArrayLike,
+    soi_radius: ArrayLike,
+    v_inf: ArrayLike,
+    periapsis_radius: ArrayLike,
+    burn_radii: list[ArrayLike],
+    target_energies: list[ArrayLike],
+    impulsive_delta_v: list[ArrayLike],
+    thrust: ArrayLike,
+    exhaust_speed: ArrayLike,
+    initial_mass: ArrayLike,
+    steering: str = "tangential",
+) -> FiniteCapture:
+    r"""
+    Fly a capture sequence with a finite-thrust engine, for a batch of points.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    body_radius : numeric
+        Radius below which the trajectory hits the body. [m]
+    soi_radius : numeric
+        Sphere-of-influence radius: leaving it outbound before the energy target is met
+        means the engine cannot capture. [m]
+    v_inf : numeric
+        Arrival (hyperbolic excess) speed. [m/s]
+    periapsis_radius : numeric
+        Periapsis radius of the approach hyperbola. [m]
+    burn_radii : list of numeric
+        For each burn, the radius where the impulsive burn would be made. [m]
+    target_energies : list of numeric
+        For each burn, the specific energy of the intended orbit after it. [J/kg]
+    impulsive_delta_v : list of numeric
+        For each burn, its impulsive delta-v (sets the centring of the ignition). [m/s]
+    thrust : numeric
+        Engine thrust. [N]
+    exhaust_speed : numeric
+        Effective exhaust speed, specific impulse times g0. [m/s]
+    initial_mass : numeric
+        Mass on arrival. [kg]
+    steering : {"tangential", "inertial"}
+        Thrust along (or against) the velocity, or fixed in inertial space.
+
+    Returns
+    -------
+    FiniteCapture
+        Per burn: delta-v :math:`v_e \ln(m_0/m_1)` [m/s], duration [s], periapsis and
+        apoapsis radius of the orbit reached [m]; per sequence: time from the approach
+        periapsis passage to the end of the last burn [s] and an outcome code (``OUTCOMES``).
+        Burns after a failure are NaN.
+
+    Notes
+    -----
+    See the module notes for the model, the steering law and the centring rule. The gravity
+    loss of a burn is its delta-v here minus its impulsive delta-v.
+    """
+    if steering not in ("tangential", "inertial"):
+        raise ValueError(f"steering must be 'tangential' or 'inertial', got {steering!r}")
+    arrays = np.broadcast_arrays(
+        *(np.asarray(a, dtype=float) for a in (gm, body_radius, soi_radius, v_inf, periapsis_radius,
+                                                thrust, exhaust_speed, initial_mass))
+    )
+    gm, body_radius, soi_radius, v_inf, periapsis_radius, thrust, exhaust_speed, mass = (
+        np.ravel(a).copy() for a in arrays
+    )
+    shape = arrays[0].shape
+    n = gm.size
+    burns = len(burn_radii)
+    flat = [[np.ravel(np.broadcast_to(np.asarray(a, dtype=float), shape)) for a in group]
+            for group in (burn_radii, target_energies, impulsive_delta_v)]
+    out_dv, out_time, out_peri, out_apo = (np.full((burns, n), np.nan) for _ in range(4))
+    outcome = np.zeros(n, dtype=np.int8)
+    mass_flow = thrust / exhaust_speed
+    state = (periapsis_radius, np.zeros(n), np.zeros(n), hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius))
+    clock = np.zeros(n)
+    limits = {"soi": soi_radius, "body_radius": body_radius, "max_time": 0.999 * mass / mass_flow}
+    for k in range(burns):
+        radius_k, energy_k, impulse_k = (group[k] for group in flat)
+        expected = impulsive_burn_time(impulse_k, mass, thrust, exhaust_speed)
+        alive = np.flatnonzero(outcome == 0)
+        if k == 0:
+            state = _coast_back(state, 0.5 * expected, gm)
+            clock = clock - 0.5 * expected
+            direction = (np.zeros(n), np.ones(n))  # velocity direction at the approach periapsis
+        else:
+            direction = (np.zeros(n), np.ones(n))
+            moved, coast, towards = _coast_to_ignition(tuple(s[alive] for s in state), gm[alive],
+                                                       radius_k[alive], 0.5 * expected[alive])
+            state = tuple(np.array(s) for s in state)
+            needed = np.abs(energy_k[alive] - _energy(*moved, gm[alive])) > 1e-12 * np.abs(energy_k[alive])
+            for target, values, old in zip(state, moved, (s[alive] for s in state), strict=True):
+                target[alive] = np.where(needed, values, old)  # no burn needed: no wait for it
+            clock[alive] = clock[alive] + np.where(needed, coast, 0.0)
+            for target, values in zip(direction, towards, strict=True):
+                target[alive] = values
+        sign = np.where(energy_k >= _energy(*state, gm), 1.0, -1.0)
+        engine = _Engine(gm, thrust, mass, mass_flow, sign)
+        if steering == "inertial":
+            engine = engine._replace(ux=sign * direction[0], uy=sign * direction[1])
+        end, duration, code = _burn(tuple(s[alive] for s in state), engine.take(alive), energy_k[alive],
+                                    expected[alive], {key: value[alive] for key, value in limits.items()})
+        state = tuple(np.array(s) for s in state)
+        for target, values in zip(state, end, strict=True):
+            target[alive] = values
+        outcome[alive] = code
+        clock[alive] = clock[alive] + duration
+        ok = alive[code == 0]
+        spent = mass_flow[ok] * duration[code == 0]
+        out_dv[k, ok] = exhaust_speed[ok] * np.log(mass[ok] / (mass[ok] - spent))
+        out_time[k, ok] = duration[code == 0]
+        mass[ok] = mass[ok] - spent
+        periapsis, apoapsis = _apsides(*(s[ok] for s in state), gm[ok])
+        out_peri[k, ok], out_apo[k, ok] = periapsis, apoapsis
+    # The craft leaves each intermediate orbit before its periapsis comes round again (the next
+    # burn is at the far apsis, or centred on that periapsis and checked during the burn), so
+    # only the final orbit is checked against the surface.
+    final = np.flatnonzero(outcome == 0)
+    outcome[final[out_peri[-1, final] < body_radius[final]]] = OUTCOMES.index("surface_impact")
+    failed = outcome != 0
+    out_dv[:, failed] = np.nan
+    out_time[:, failed] = np.nan
+    time = np.where(failed, np.nan, clock)
+    return FiniteCapture(
+        *(a.reshape((burns, *shape)) for a in (out_dv, out_time, out_peri, out_apo)),
+        time.reshape(shape), outcome.reshape(shape),
+    )
