@@ -21,6 +21,7 @@ from sweep.config import load_config
 from sweep.dataset import write_dataset
 from sweep.errors import SweepError
 from sweep.evaluate import estimate_bytes
+from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.summary import answers, summary_tables, write_summary
 
 __all__ = ["main"]
@@ -112,6 +113,11 @@ def _check(args: argparse.Namespace) -> int:
         print(f"  {label}: {values.size} values, {values[0]:g} to {values[-1]:g} {unit}")
     print(f"  grid shape (body, v_inf, target_altitude, periapsis_altitude): {shape}")
     print(f"  points: {points:,} (x 3 strategies)")
+    if config.thrust is not None:
+        ratio = config.thrust / (config.arrival_mass * STANDARD_GRAVITY)
+        print(f"  thrust: {config.thrust.size} values, {config.thrust[0]:,.6g} to {config.thrust[-1]:,.6g} N "
+              f"(thrust-to-weight {ratio[0]:.3g} to {ratio[-1]:.3g}), {config.steering} steering")
+        print(f"  finite-burn points: {points * config.thrust.size:,} (x 3 strategies, each burn integrated)")
     print(f"  cube size, uncompressed, and memory for the run: about {_size(estimate_bytes(config))}")
     return 0
 

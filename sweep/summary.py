@@ -76,7 +76,7 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
                 else:
                     row += [0.0 if count else np.nan, 0.0 if count else np.nan, np.nan, np.nan, np.nan]
                 shares.append(row)
-    return {
+    tables = {
         "wins": pd.DataFrame(wins, columns=["body", "target_altitude_km", "periapsis_altitude_km",
                                             "strategy", "v_inf_from_km_s", "v_inf_to_km_s"]),
         "crossover": pd.DataFrame(crossover, columns=["body", "target_altitude_km", "periapsis_altitude_km",
@@ -86,6 +86,46 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
                                                 "share_of_feasible", "max_saving_m_s", "max_propellant_saving_kg",
                                                 "at_v_inf_km_s", "at_periapsis_altitude_km",
                                                 "at_time_to_orbit_days"]),
+    }
+    if "finite_delta_v" in dataset:
+        tables.update(_finite_tables(dataset))
+    return tables
+
+
+def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
+    """Finite-burn crossovers per periapsis and thrust; wins and gravity losses per thrust."""
+    bodies, names = _labels(dataset)
+    meanings = dataset["finite_status"].attrs["flag_meanings"].split()
+    engine_codes = [meanings.index(m) for m in ("engine_cannot_capture", "propellant_exhausted", "surface_impact")]
+    loss = (dataset["finite_delta_v"] - dataset["delta_v"]).values  # (S, B, V, T, P, F)
+    best = dataset["finite_best_strategy"].values
+    status = dataset["finite_status"].values
+    thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
+    crossing, losses = [], []
+    for b, body in enumerate(bodies):
+        for t, target in enumerate(dataset["target_altitude"].values):
+            for f, thrust in enumerate(thrusts):
+                for p, periapsis in enumerate(dataset["periapsis_altitude"].values):
+                    crossing.append((body, target, periapsis, thrust, ratios[f],
+                                     float(dataset["finite_crossover_v_inf"].values[b, t, p, f]),
+                                     float(dataset["finite_three_burn_crossover_v_inf"].values[b, t, p, f])))
+                block = best[b, :, t, :, f]
+                feasible = int((block >= 0).sum())
+                for s, name in enumerate(names):
+                    values = loss[s, b, :, t, :, f]
+                    flown = values[np.isfinite(values)]
+                    engine = np.isin(status[s, b, :, t, :, f], engine_codes).mean()
+                    won = int((block == s).sum())
+                    losses.append((body, target, thrust, ratios[f], name, won, won / feasible if feasible else np.nan,
+                                   float(np.median(flown)) if flown.size else np.nan,
+                                   float(flown.max()) if flown.size else np.nan, float(engine)))
+    return {
+        "finite_crossover": pd.DataFrame(crossing, columns=[
+            "body", "target_altitude_km", "periapsis_altitude_km", "thrust_n", "thrust_to_weight",
+            "two_burn_crossover_v_inf_km_s", "three_burn_crossover_v_inf_km_s"]),
+        "finite_losses": pd.DataFrame(losses, columns=[
+            "body", "target_altitude_km", "thrust_n", "thrust_to_weight", "strategy", "points_won",
+            "share_of_feasible", "median_gravity_loss_m_s", "max_gravity_loss_m_s", "share_engine_limited"]),
     }
 
 
@@ -169,6 +209,45 @@ def answers(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) 
     }
 
 
+def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int, t: int) -> list[str]:
+    """How the answer moves with thrust: crossovers at the lowest feasible periapsis, wins, losses."""
+    bodies, names = _labels(dataset)
+    body, target = bodies[b], float(dataset["target_altitude"].values[t])
+    periapses = dataset["periapsis_altitude"].values
+    two_burn = names.index("two_burn")
+    feasible = [p for p in np.flatnonzero(dataset["status"].values[two_burn, b, 0, t] == 0) if periapses[p] < target]
+    losses = tables["finite_losses"]
+    here = losses[(losses.body == body) & (losses.target_altitude_km == target)]
+    lines = ["With finite burns (gravity losses included; see the model in the cube's attributes):", ""]
+    header = "| thrust | T/W | points won: " + " / ".join(names) + " | median (max) gravity loss, m/s: " + \
+        " / ".join(names) + " | engine-limited |"
+    lines += [header, "|---:|---:|---|---|---|"]
+    sentences = []
+    for f, thrust in enumerate(dataset["thrust"].values):
+        rows = here[here.thrust_n == thrust].set_index("strategy").loc[names]
+        ratio = float(dataset["thrust_to_weight"].values[f])
+        won = " / ".join(f"{share:.0%}" if np.isfinite(share) else "-" for share in rows.share_of_feasible)
+        loss = " / ".join("-" if not np.isfinite(m) else f"{m:.0f} ({x:.0f})"
+                          for m, x in zip(rows.median_gravity_loss_m_s, rows.max_gravity_loss_m_s, strict=True))
+        limited = " / ".join(f"{share:.0%}" for share in rows.share_engine_limited)
+        lines.append(f"| {thrust:,.0f} N | {ratio:.3g} | {won} | {loss} | {limited} |")
+        if feasible:
+            p = feasible[0]
+            finite = dataset["finite_crossover_v_inf"].values[b, t, p, f]
+            impulsive = dataset["crossover_v_inf"].values[b, t, p]
+            text = (f"above {finite:.2f} km/s" if np.isfinite(finite)
+                    else "at no crossover within the grid's speeds (see the engine-limited shares)")
+            sentences.append(f"at T/W {ratio:.3g} ({thrust:,.0f} N) `two_burn` with periapsis {_km(periapses[p])} "
+                             f"pays {text} (impulsive: {_speed(impulsive)})")
+    lines.append("")
+    if sentences:
+        lines += ["In short: " + "; ".join(sentences) + ".", ""]
+    lines.append("Engine-limited: share of the grid where the engine cannot capture, runs out of mass, or the "
+                 "trajectory meets the surface (per strategy).")
+    lines.append("")
+    return lines
+
+
 def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) -> str:
     """Markdown report: per body and target, where each strategy wins and by how much."""
     tables = tables or summary_tables(dataset)
@@ -219,13 +298,17 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
             if len(shown) < periapses.size:
                 lines.append(f"\n(showing {len(shown)} of {periapses.size} periapsis altitudes; all are in wins.csv)")
             lines.append("")
+            if "finite_delta_v" in dataset:
+                lines += _finite_section(dataset, tables, b, t)
         lines += _status_lines(dataset, b, names) + [""]
     lines += [
         "## How to read this",
         "",
         "Winner: the feasible strategy with the least total delta-v at that grid point; `none` where no "
         "strategy is feasible. Crossover speeds are roots of the model's cost difference, not grid "
-        "values. Files beside this one: wins.csv, crossover.csv, shares.csv.",
+        "values. Files beside this one: wins.csv, crossover.csv, shares.csv (and, with a thrust axis, "
+        "finite_crossover.csv and finite_losses.csv). Gravity loss: finite-burn delta-v minus impulsive "
+        "delta-v for the same strategy and point.",
         "",
         f"**Caution.** {dataset.attrs.get('comment', '')}",
         "",

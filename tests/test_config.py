@@ -82,6 +82,23 @@ def test_bad_values_name_file_key_and_value(small_config_text, old, new, message
         parse_config(_replace(small_config_text, old, new), "small.toml")
 
 
+def test_thrust_axes(small_config_text):
+    config = parse_config(small_config_text.replace("[spacecraft]", "[spacecraft]").replace(
+        "periapsis_altitude = [20.0, 250.0, 1000.0, 8000.0]",
+        "periapsis_altitude = [20.0, 250.0, 1000.0, 8000.0]\nthrust = [500.0, 100.0]"))
+    np.testing.assert_allclose(config.thrust, [100.0, 500.0])
+    assert config.finite_shape == (3, 12, 2, 4, 2) and config.thrust_given_as == "thrust"
+    assert parse_config(small_config_text).thrust is None
+    both = small_config_text.replace("periapsis_altitude = [20.0, 250.0, 1000.0, 8000.0]",
+                                     "periapsis_altitude = [20.0]\nthrust = [1.0]\nthrust_to_weight = [0.1]")
+    with pytest.raises(ConfigError, match=r"c\.toml: grid: give thrust or thrust_to_weight, not both"):
+        parse_config(both, "c.toml")
+    zero = small_config_text.replace("periapsis_altitude = [20.0, 250.0, 1000.0, 8000.0]",
+                                     "periapsis_altitude = [20.0]\nthrust_to_weight = [0.0, 0.1]")
+    with pytest.raises(ConfigError, match=r"c\.toml: grid\.thrust_to_weight: values must be > 0 \(got 0\.0\)"):
+        parse_config(zero, "c.toml")
+
+
 def test_incomplete_custom_body_is_named(small_config_text):
     text = _replace(small_config_text, '"enceladus"]', '"vesta"]') + '\n[bodies.vesta]\ngm = 17.0\n'
     with pytest.raises(ConfigError, match=r"c\.toml: body 'vesta' lacks mean_radius.*\(in \[bodies\.vesta\]\)"):
