@@ -49,9 +49,9 @@ __all__ = [
     "impulsive_burn_time",
 ]
 
-STEPS_PER_BURN = 64  # RK4 steps at least, across a burn's impulsive-equivalent duration
-STEPS_PER_ORBIT = 1000  # and at most this fraction of the local circular period per step
-_NEWTON_STEPS = 5  # end-of-burn refinement: quadratic convergence from a secant start
+STEPS_PER_BURN = 48  # RK4 steps at least, across a burn's impulsive-equivalent duration
+STEPS_PER_ORBIT = 750  # and at most 1/750 of the local circular period per step
+_NEWTON_STEPS = 3  # end-of-burn refinement: Newton on the energy from a secant start
 _KEPLER_STEPS = 40  # Newton steps on Kepler's equation (converges in < 10 for e < 0.999)
 _MAX_STEPS_FACTOR = 50  # a burn may take this many times its expected steps before giving up
 
@@ -113,28 +113,34 @@ def _apsides(x, y, vx, vy, gm):
     return periapsis, apoapsis
 
 
-def _accelerations(x, y, vx, vy, tau, p: _Engine):
-    """Two-body gravity plus thrust at time ``tau`` after ignition."""
+def _accelerations(x, y, vx, vy, thrust_acceleration, p: _Engine):
+    """Two-body gravity plus thrust; ``thrust_acceleration`` carries the sign of the burn."""
     r2 = x * x + y * y
-    gravity = -p.gm / (r2 * np.sqrt(r2))
-    thrust_acceleration = p.thrust / (p.mass - p.mass_flow * tau)
+    gravity = p.gm / (r2 * np.sqrt(r2))
     if p.ux is None:
-        scale = p.sign * thrust_acceleration / np.sqrt(vx * vx + vy * vy)
-        return gravity * x + vx * scale, gravity * y + vy * scale
-    return gravity * x + p.ux * thrust_acceleration, gravity * y + p.uy * thrust_acceleration
+        scale = thrust_acceleration / np.sqrt(vx * vx + vy * vy)
+        return vx * scale - gravity * x, vy * scale - gravity * y
+    return p.ux * thrust_acceleration - gravity * x, p.uy * thrust_acceleration - gravity * y
+
+
+def _thrust_acceleration(tau, p: _Engine):
+    """Signed thrust acceleration T/m at ``tau`` after ignition (the sign is unity for fixed steering)."""
+    acceleration = p.thrust / (p.mass - p.mass_flow * tau)
+    return acceleration * p.sign if p.ux is None else acceleration
 
 
 def _rk4(state, tau, dt, p):
     """One classical Runge-Kutta step ([3]_) of every point with its own ``dt``."""
     x, y, vx, vy = state
     half = 0.5 * dt
-    ax1, ay1 = _accelerations(x, y, vx, vy, tau, p)
+    start, middle, end = (_thrust_acceleration(t, p) for t in (tau, tau + half, tau + dt))
+    ax1, ay1 = _accelerations(x, y, vx, vy, start, p)
     x2, y2, vx2, vy2 = x + half * vx, y + half * vy, vx + half * ax1, vy + half * ay1
-    ax2, ay2 = _accelerations(x2, y2, vx2, vy2, tau + half, p)
+    ax2, ay2 = _accelerations(x2, y2, vx2, vy2, middle, p)
     x3, y3, vx3, vy3 = x + half * vx2, y + half * vy2, vx + half * ax2, vy + half * ay2
-    ax3, ay3 = _accelerations(x3, y3, vx3, vy3, tau + half, p)
+    ax3, ay3 = _accelerations(x3, y3, vx3, vy3, middle, p)
     x4, y4, vx4, vy4 = x + dt * vx3, y + dt * vy3, vx + dt * ax3, vy + dt * ay3
-    ax4, ay4 = _accelerations(x4, y4, vx4, vy4, tau + dt, p)
+    ax4, ay4 = _accelerations(x4, y4, vx4, vy4, end, p)
     sixth = dt / 6.0
     return (
         x + sixth * (vx + 2.0 * (vx2 + vx3) + vx4),
@@ -155,7 +161,7 @@ def _coast_back(state, duration, gm):
     radius = np.sqrt(x * x + y * y)
     steps = np.ceil(duration / _step_size(np.inf, radius, gm)).astype(np.int64)
     dt = -duration / np.maximum(steps, 1)
-    off = _Engine(gm, np.zeros_like(gm), np.ones_like(gm), np.zeros_like(gm), np.ones_like(gm))
+    off = _Engine(gm, np.zeros_like(gm), np.ones_like(gm), np.zeros_like(gm), np.ones_like(gm))  # engine off
     for step in range(int(steps.max(initial=0))):
         index = np.flatnonzero(steps > step)
         new = _rk4((x[index], y[index], vx[index], vy[index]), 0.0, dt[index], off.take(index))
@@ -219,43 +225,49 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits):
     """
     Integrate one burn for every point until its energy reaches ``target_energy``.
 
-    Returns the final state, the burn duration and an outcome code per point.
+    Returns the final state, the burn duration and an outcome code per point. The points
+    still burning are kept in compact working arrays, trimmed only on steps where some finish.
     """
     x, y, vx, vy = (np.array(s, dtype=float) for s in state)
     duration = np.zeros(x.size)
     outcome = np.zeros(x.size, dtype=np.int8)
-    active = np.flatnonzero(np.abs(target_energy - _energy(x, y, vx, vy, p.gm)) > 1e-12 * np.abs(target_energy))
+    ids = np.flatnonzero(np.abs(target_energy - _energy(x, y, vx, vy, p.gm)) > 1e-12 * np.abs(target_energy))
     dt_all = _step_size(np.maximum(expected_time, 1e-3), np.sqrt(x * x + y * y), p.gm)
     max_steps = _MAX_STEPS_FACTOR * (int(np.ceil((expected_time / dt_all).max(initial=0))) + STEPS_PER_BURN)
+    q = p.take(ids)
+    work = (x[ids], y[ids], vx[ids], vy[ids])
+    tau, dt, goal = np.zeros(ids.size), dt_all[ids], target_energy[ids]
+    soi, surface, max_time = (limits[key][ids] for key in ("soi", "body_radius", "max_time"))
     for _ in range(max_steps):
-        if active.size == 0:
+        if ids.size == 0:
             break
-        q = p.take(active)
-        start = (x[active], y[active], vx[active], vy[active])
-        tau, dt, goal = duration[active], dt_all[active], target_energy[active]
-        new = _rk4(start, tau, dt, q)
+        new = _rk4(work, tau, dt, q)
         new_energy = _energy(*new, q.gm)
         crossed = q.sign * (new_energy - goal) >= 0.0
-        if crossed.any():
-            c = np.flatnonzero(crossed)
-            end, step = _finish(tuple(s[c] for s in start), tau[c], dt[c], goal[c], new_energy[c], q.take(c))
-            for target, values in zip((x, y, vx, vy), end, strict=True):
-                target[active[c]] = values
-            duration[active[c]] = tau[c] + step
-        keep = np.flatnonzero(~crossed)
-        ids = active[keep]
-        nx, ny, nvx, nvy = (s[keep] for s in new)
-        x[ids], y[ids], vx[ids], vy[ids] = nx, ny, nvx, nvy
-        duration[ids] = tau[keep] + dt[keep]
+        nx, ny, nvx, nvy = new
         r = np.sqrt(nx * nx + ny * ny)
-        escaped = (r > limits["soi"][ids]) & (nx * nvx + ny * nvy > 0)
-        exhausted = ~escaped & (duration[ids] >= limits["max_time"][ids])
-        impact = ~escaped & ~exhausted & (r < limits["body_radius"][ids])
-        outcome[ids[escaped]] = OUTCOMES.index("engine_cannot_capture")
-        outcome[ids[exhausted]] = OUTCOMES.index("propellant_exhausted")
-        outcome[ids[impact]] = OUTCOMES.index("surface_impact")
-        active = ids[~(escaped | impact | exhausted)]
-    outcome[active] = OUTCOMES.index("propellant_exhausted")  # still burning at the step cap
+        escaped = ~crossed & (r > soi) & (nx * nvx + ny * nvy > 0)
+        exhausted = ~crossed & ~escaped & (tau + dt >= max_time)
+        impact = ~crossed & ~escaped & ~exhausted & (r < surface)
+        done = crossed | escaped | exhausted | impact
+        if done.any():
+            if crossed.any():
+                c = np.flatnonzero(crossed)
+                end, step = _finish(tuple(s[c] for s in work), tau[c], dt[c], goal[c], new_energy[c], q.take(c))
+                for target, values in zip((x, y, vx, vy), end, strict=True):
+                    target[ids[c]] = values
+                duration[ids[c]] = tau[c] + step
+            for name, failed in (("engine_cannot_capture", escaped), ("propellant_exhausted", exhausted),
+                                 ("surface_impact", impact)):
+                outcome[ids[failed]] = OUTCOMES.index(name)
+                duration[ids[failed]] = tau[failed] + dt[failed]
+            keep = ~done
+            ids, q, tau, dt, goal = ids[keep], q.take(keep), tau[keep], dt[keep], goal[keep]
+            soi, surface, max_time = soi[keep], surface[keep], max_time[keep]
+            new = tuple(s[keep] for s in new)
+        work = new
+        tau = tau + dt
+    outcome[ids] = OUTCOMES.index("propellant_exhausted")  # still burning at the step cap
     return (x, y, vx, vy), duration, outcome
 
 
@@ -272,9 +284,9 @@ def _finish(start, tau, dt, goal, end_energy, q: _Engine):
 def _energy_rate(state, tau, p: _Engine):
     """d(energy)/dt = (T/m) u . v: the thrust's power per unit mass (gravity does no net work)."""
     x, y, vx, vy = state
-    thrust_acceleration = p.thrust / (p.mass - p.mass_flow * tau)
+    thrust_acceleration = _thrust_acceleration(tau, p)
     if p.ux is None:
-        return p.sign * thrust_acceleration * np.sqrt(vx * vx + vy * vy)
+        return thrust_acceleration * np.sqrt(vx * vx + vy * vy)
     return thrust_acceleration * (p.ux * vx + p.uy * vy)
 
 
