@@ -52,8 +52,9 @@ __all__ = [
 STEPS_PER_BURN = 48  # RK4 steps at least, across a burn's impulsive-equivalent duration
 STEPS_PER_ORBIT = 750  # and at most 1/750 of the local circular period per step
 _NEWTON_STEPS = 3  # end-of-burn refinement: Newton on the energy from a secant start
-_KEPLER_STEPS = 40  # Newton steps on Kepler's equation (converges in < 10 for e < 0.999)
+_KEPLER_STEPS = 60  # Newton steps on Kepler's equation at most (it stops once converged)
 _MAX_STEPS_FACTOR = 50  # a burn may take this many times its expected steps before giving up
+_RESERVE = 1e-3  # fraction of the arrival mass that cannot be burned (propellant_exhausted below it)
 
 # Outcome codes of a sequence (index = code).
 OUTCOMES = ("ok", "engine_cannot_capture", "propellant_exhausted", "surface_impact")
@@ -155,19 +156,53 @@ def _step_size(expected_time, radius, gm):
     return np.minimum(expected_time / STEPS_PER_BURN, local_period / STEPS_PER_ORBIT)
 
 
+def _stumpff(z):
+    """Stumpff functions C(z), S(z) ([2]_ Ch. 3): each branch only where it applies, series near 0."""
+    c, s = np.empty_like(z), np.empty_like(z)
+    small = np.abs(z) < 1e-3
+    c[small] = 1 / 2 - z[small] / 24 + z[small] ** 2 / 720 - z[small] ** 3 / 40320
+    s[small] = 1 / 6 - z[small] / 120 + z[small] ** 2 / 5040 - z[small] ** 3 / 362880
+    for mask, cosine, sine in ((~small & (z > 0), np.cos, np.sin), (~small & (z < 0), np.cosh, np.sinh)):
+        if mask.any():
+            root = np.sqrt(np.abs(z[mask]))
+            sign = 1.0 if cosine is np.cos else -1.0
+            c[mask] = sign * (1.0 - cosine(root)) / root**2
+            s[mask] = sign * (root - sine(root)) / root**3
+    return c, s
+
+
 def _coast_back(state, duration, gm):
-    """Propagate the approach backwards by ``duration`` (>= 0) with the engine off (RK4)."""
-    x, y, vx, vy = (np.array(s, dtype=float) for s in state)
-    radius = np.sqrt(x * x + y * y)
-    steps = np.ceil(duration / _step_size(np.inf, radius, gm)).astype(np.int64)
-    dt = -duration / np.maximum(steps, 1)
-    off = _Engine(gm, np.zeros_like(gm), np.ones_like(gm), np.zeros_like(gm), np.ones_like(gm))  # engine off
-    for step in range(int(steps.max(initial=0))):
-        index = np.flatnonzero(steps > step)
-        new = _rk4((x[index], y[index], vx[index], vy[index]), 0.0, dt[index], off.take(index))
-        for target, values in zip((x, y, vx, vy), new, strict=True):
-            target[index] = values
-    return x, y, vx, vy
+    """
+    Coast the approach back in time by ``duration`` (>= 0) from its periapsis, any conic.
+
+    Universal-variable Kepler propagation with Lagrange coefficients ([2]_ Ch. 3), Newton on
+    the universal anomaly: exact for hyperbolic, parabolic (zero excess speed) and elliptic arcs.
+    """
+    x0, y0, vx0, vy0 = (np.asarray(s, dtype=float) for s in state)
+    r0 = np.sqrt(x0 * x0 + y0 * y0)
+    radial = (x0 * vx0 + y0 * vy0) / r0
+    alpha = 2.0 / r0 - (vx0 * vx0 + vy0 * vy0) / gm  # reciprocal semi-major axis
+    root_mu = np.sqrt(gm)
+    dt = -np.asarray(duration, dtype=float)
+    chi = root_mu * dt / r0
+    for _ in range(_KEPLER_STEPS):
+        z = alpha * chi * chi
+        c, s = _stumpff(z)
+        time = (r0 * radial / root_mu) * chi * chi * c + (1.0 - alpha * r0) * chi**3 * s + r0 * chi
+        slope = (r0 * radial / root_mu) * chi * (1.0 - z * s) + (1.0 - alpha * r0) * chi * chi * c + r0
+        step = (time - root_mu * dt) / slope
+        chi = chi - step
+        if np.all(np.abs(step) <= 1e-11 * np.maximum(np.abs(chi), 1.0)):  # rounding floor ~1e-13
+            break
+    z = alpha * chi * chi
+    c, s = _stumpff(z)
+    f = 1.0 - chi * chi / r0 * c
+    g = dt - chi**3 / root_mu * s
+    x, y = f * x0 + g * vx0, f * y0 + g * vy0
+    r = np.sqrt(x * x + y * y)
+    f_dot = root_mu / (r * r0) * (alpha * chi**3 * s - chi)
+    g_dot = 1.0 - chi * chi / r * c
+    return x, y, f_dot * x0 + g_dot * vx0, f_dot * y0 + g_dot * vy0
 
 
 def _solve_kepler(mean_anomaly, eccentricity):
@@ -367,7 +402,7 @@ def fly_capture(
     mass_flow = thrust / exhaust_speed
     state = (periapsis_radius, np.zeros(n), np.zeros(n), hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius))
     clock = np.zeros(n)
-    limits = {"soi": soi_radius, "body_radius": body_radius, "max_time": 0.999 * mass / mass_flow}
+    reserve = _RESERVE * mass  # the burns may spend all of the arrival mass but this
     for k in range(burns):
         radius_k, energy_k, impulse_k = (group[k] for group in flat)
         expected = impulsive_burn_time(impulse_k, mass, thrust, exhaust_speed)
@@ -391,8 +426,10 @@ def fly_capture(
         engine = _Engine(gm, thrust, mass, mass_flow, sign)
         if steering == "inertial":
             engine = engine._replace(ux=sign * direction[0], uy=sign * direction[1])
+        limits = {"soi": soi_radius[alive], "body_radius": body_radius[alive],
+                  "max_time": (mass[alive] - reserve[alive]) / mass_flow[alive]}
         end, duration, code = _burn(tuple(s[alive] for s in state), engine.take(alive), energy_k[alive],
-                                    expected[alive], {key: value[alive] for key, value in limits.items()})
+                                    expected[alive], limits)
         state = tuple(np.array(s) for s in state)
         for target, values in zip(state, end, strict=True):
             target[alive] = values
