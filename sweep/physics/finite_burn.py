@@ -49,11 +49,14 @@ __all__ = [
     "impulsive_burn_time",
 ]
 
-STEPS_PER_BURN = 48  # RK4 steps at least, across a burn's impulsive-equivalent duration
-STEPS_PER_ORBIT = 750  # and at most 1/750 of the local circular period per step
+# RK4 step: the smallest of three limits, taken afresh at every step of every point.
+STEPS_PER_BURN = 48  # a burn's impulsive-equivalent duration over this many steps
+STEPS_PER_ORBIT = 750  # 1/750 of the circular period at the current radius
+MASS_STEP = 0.02  # the time to burn 2 % of the current mass (T/m changes by 2 % a step)
 _NEWTON_STEPS = 3  # end-of-burn refinement: Newton on the energy from a secant start
-_KEPLER_STEPS = 60  # Newton steps on Kepler's equation at most (it stops once converged)
-_MAX_STEPS_FACTOR = 50  # a burn may take this many times its expected steps before giving up
+_KEPLER_STEPS = 200  # Newton (or bisection) steps on Kepler's equation at most; stops once converged
+_MAX_STEPS = 200_000  # a burn still going after this many steps is reported propellant_exhausted
+_LEAST_SPEED = 1e-3  # m/s: floor on the speed dividing tangential thrust (no direction at rest)
 _RESERVE = 1e-3  # fraction of the arrival mass that cannot be burned (propellant_exhausted below it)
 
 # Outcome codes of a sequence (index = code).
@@ -119,7 +122,7 @@ def _accelerations(x, y, vx, vy, thrust_acceleration, p: _Engine):
     r2 = x * x + y * y
     gravity = p.gm / (r2 * np.sqrt(r2))
     if p.ux is None:
-        scale = thrust_acceleration / np.sqrt(vx * vx + vy * vy)
+        scale = thrust_acceleration / np.maximum(np.sqrt(vx * vx + vy * vy), _LEAST_SPEED)
         return vx * scale - gravity * x, vy * scale - gravity * y
     return p.ux * thrust_acceleration - gravity * x, p.uy * thrust_acceleration - gravity * y
 
@@ -151,9 +154,13 @@ def _rk4(state, tau, dt, p):
     )
 
 
-def _step_size(expected_time, radius, gm):
-    local_period = 2.0 * np.pi * np.sqrt(radius**3 / gm)
-    return np.minimum(expected_time / STEPS_PER_BURN, local_period / STEPS_PER_ORBIT)
+def _step_size(burn_step, x, y, gm, mass, mass_flow):
+    """RK4 step per point: the burn step, the local-period limit and the mass limit."""
+    r2 = x * x + y * y
+    local_period = 2.0 * np.pi * np.sqrt(r2 * np.sqrt(r2) / gm)
+    with np.errstate(divide="ignore"):
+        mass_time = MASS_STEP * mass / mass_flow
+    return np.minimum(np.minimum(burn_step, local_period / STEPS_PER_ORBIT), mass_time)
 
 
 def _stumpff(z):
@@ -184,16 +191,51 @@ def _coast_back(state, duration, gm):
     alpha = 2.0 / r0 - (vx0 * vx0 + vy0 * vy0) / gm  # reciprocal semi-major axis
     root_mu = np.sqrt(gm)
     dt = -np.asarray(duration, dtype=float)
-    chi = root_mu * dt / r0
-    for _ in range(_KEPLER_STEPS):
-        z = alpha * chi * chi
+    # The universal time equation rises monotonically in chi with slope r >= r0 > 0 on this arc,
+    # so the root lies between 0 and sqrt(mu) dt / r0: Newton, with bisection where it would
+    # leave that bracket or meets an overflow (very long hyperbolic coasts).
+    low, high = np.minimum(root_mu * dt / r0, 0.0), np.maximum(root_mu * dt / r0, 0.0)
+    offset = r0 * radial / root_mu
+
+    def residual_and_slope(x_, a_, k_, r_, target):
+        z = a_ * x_ * x_
         c, s = _stumpff(z)
-        time = (r0 * radial / root_mu) * chi * chi * c + (1.0 - alpha * r0) * chi**3 * s + r0 * chi
-        slope = (r0 * radial / root_mu) * chi * (1.0 - z * s) + (1.0 - alpha * r0) * chi * chi * c + r0
-        step = (time - root_mu * dt) / slope
-        chi = chi - step
-        if np.all(np.abs(step) <= 1e-11 * np.maximum(np.abs(chi), 1.0)):  # rounding floor ~1e-13
-            break
+        residual = k_ * x_ * x_ * c + (1.0 - a_ * r_) * x_**3 * s + r_ * x_ - target
+        # Overflow (inf - inf) only happens far beyond the root, where the time has chi's sign.
+        residual = np.where(np.isfinite(residual), residual, np.sign(x_) * np.inf)
+        return residual, k_ * x_ * (1.0 - z * s) + (1.0 - a_ * r_) * x_ * x_ * c + r_
+
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        # Two starting guesses, keep the better: the near-periapsis one (short arcs) and, on
+        # hyperbolas, sqrt(|a|) asinh(M / e) from the hyperbolic Kepler equation (long arcs).
+        near = root_mu * dt / r0
+        semi_major = 1.0 / np.where(alpha < 0, -alpha, np.inf)
+        eccentricity = 1.0 - alpha * r0
+        mean_anomaly = np.sqrt(gm / semi_major**3) * dt
+        far = np.where(alpha < 0, np.sqrt(semi_major) * np.arcsinh(mean_anomaly / eccentricity), near)
+        target = root_mu * dt
+        near_residual = residual_and_slope(near, alpha, offset, r0, target)[0]
+        far_residual = residual_and_slope(far, alpha, offset, r0, target)[0]
+        chi = np.where(np.abs(far_residual) < np.abs(near_residual), far, near)
+        last_step = high - low
+        todo = np.arange(chi.size)
+        for _ in range(_KEPLER_STEPS):
+            if todo.size == 0:
+                break
+            x_ = chi[todo]
+            residual, slope = residual_and_slope(x_, alpha[todo], offset[todo], r0[todo], target[todo])
+            lo = np.where(residual < 0, x_, low[todo])
+            hi = np.where(residual > 0, x_, high[todo])
+            newton = x_ - residual / slope
+            # Newton where it stays in the bracket and at least halves the previous step
+            # (safeguarded Newton); bisection otherwise.
+            good = np.isfinite(newton) & (newton >= lo) & (newton <= hi) & \
+                (np.abs(2.0 * residual) <= np.abs(last_step[todo] * slope))
+            update = np.where(good, newton, 0.5 * (lo + hi))
+            low[todo], high[todo], chi[todo] = lo, hi, update
+            last_step[todo] = update - x_
+            converged = np.abs(update - x_) <= 1e-11 * np.maximum(np.abs(x_), 1.0)  # rounding floor ~1e-13
+            todo = todo[~converged]
     z = alpha * chi * chi
     c, s = _stumpff(z)
     f = 1.0 - chi * chi / r0 * c
@@ -267,15 +309,16 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits):
     duration = np.zeros(x.size)
     outcome = np.zeros(x.size, dtype=np.int8)
     ids = np.flatnonzero(np.abs(target_energy - _energy(x, y, vx, vy, p.gm)) > 1e-12 * np.abs(target_energy))
-    dt_all = _step_size(np.maximum(expected_time, 1e-3), np.sqrt(x * x + y * y), p.gm)
-    max_steps = _MAX_STEPS_FACTOR * (int(np.ceil((expected_time / dt_all).max(initial=0))) + STEPS_PER_BURN)
+    burn_step = np.maximum(expected_time, 1e-3) / STEPS_PER_BURN
     q = p.take(ids)
     work = (x[ids], y[ids], vx[ids], vy[ids])
-    tau, dt, goal = np.zeros(ids.size), dt_all[ids], target_energy[ids]
+    tau, goal, burn_step = np.zeros(ids.size), target_energy[ids], burn_step[ids]
     soi, surface, max_time = (limits[key][ids] for key in ("soi", "body_radius", "max_time"))
-    for _ in range(max_steps):
+    for _ in range(_MAX_STEPS):
         if ids.size == 0:
             break
+        dt = _step_size(burn_step, work[0], work[1], q.gm, q.mass - q.mass_flow * tau, q.mass_flow)
+        dt = np.minimum(dt, np.maximum(max_time - tau, 0.0) + 1e-9)  # never step past the tanks
         new = _rk4(work, tau, dt, q)
         new_energy = _energy(*new, q.gm)
         crossed = q.sign * (new_energy - goal) >= 0.0
@@ -297,7 +340,7 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits):
                 outcome[ids[failed]] = OUTCOMES.index(name)
                 duration[ids[failed]] = tau[failed] + dt[failed]
             keep = ~done
-            ids, q, tau, dt, goal = ids[keep], q.take(keep), tau[keep], dt[keep], goal[keep]
+            ids, q, tau, dt, goal, burn_step = ids[keep], q.take(keep), tau[keep], dt[keep], goal[keep], burn_step[keep]
             soi, surface, max_time = soi[keep], surface[keep], max_time[keep]
             new = tuple(s[keep] for s in new)
         work = new
