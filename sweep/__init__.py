@@ -10,19 +10,18 @@ __version__ = "0.1.0"
 
 from sweep.config import load_config, parse_config  # noqa: E402
 from sweep.dataset import build_dataset, open_cube, write_dataset  # noqa: E402
-from sweep.evaluate import evaluate  # noqa: E402
+from sweep.evaluate import evaluate as _evaluate  # noqa: E402  (module sweep.evaluate keeps its name)
 from sweep.summary import render_summary, write_summary  # noqa: E402
 
 
 def run(config, workers: int | None = None, progress: bool = False):
     """Evaluate ``config`` and return the labelled cube as an ``xarray.Dataset``."""
-    return build_dataset(config, evaluate(config, workers=workers, progress=progress))
+    return build_dataset(config, _evaluate(config, workers=workers, progress=progress))
 
 
 __all__ = [
     "__version__",
     "build_dataset",
-    "evaluate",
     "load_config",
     "open_cube",
     "parse_config",

@@ -11,6 +11,9 @@ regula falsi on the finite-burn model itself.
 from __future__ import annotations
 
 import logging
+import os
+import shutil
+import tempfile
 from dataclasses import dataclass
 
 import numpy as np
@@ -35,6 +38,7 @@ _DIRECT = strategy_names().index("direct")
 _CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
 _ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
+_BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
 
 
 @dataclass
@@ -154,51 +158,55 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
     return out
 
 
-def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteArrays) -> None:
-    """Equal-cost arrival speeds per (body, target, periapsis, thrust), in place, km/s."""
+def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteArrays, runner) -> None:
+    """
+    Equal-cost arrival speeds per (body, target, periapsis, thrust), in place, km/s.
+
+    The brackets go to ``runner`` in fixed groups of ``_BRACKETS_PER_TASK`` (independent of the
+    worker count, so the answer is too).
+    """
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
     v_grid = config.v_inf * _KM
     arrays.finite_crossover_v_inf[...] = np.nan
     for slot, challenger in enumerate(_CHALLENGERS):
         gap = arrays.finite_delta_v[challenger] - arrays.finite_delta_v[_DIRECT]  # (B, V, T, P, F)
         flips = (np.sign(gap[:, :-1]) * np.sign(gap[:, 1:]) < 0)
-        has = flips.any(axis=1)
         first = np.argmax(flips, axis=1)  # (B, T, P, F)
-        b, t, p, f = np.nonzero(has)
+        b, t, p, f = np.nonzero(flips.any(axis=1))
         if b.size == 0:
             continue
         i = first[b, t, p, f]
-        low, high = v_grid[i], v_grid[i + 1]
-        gap_low, gap_high = gap[b, i, t, p, f], gap[b, i + 1, t, p, f]
-        inputs = dict(
-            gm=np.array([bodies[k].gm for k in b]), radius=np.array([bodies[k].radius for k in b]),
-            soi=np.array([bodies[k].soi for k in b]),
-            geometry=Geometry(
-                np.array([bodies[k].gm for k in b]),
-                np.array([bodies[k].periapsis_radius[0, q] for k, q in zip(b, p, strict=True)]),
-                np.array([bodies[k].target_radius[q, 0] for k, q in zip(b, t, strict=True)]),
-                np.array([bodies[k].apoapsis_radius[u, q] for k, u, q in zip(b, t, p, strict=True)]),
-            ),
-            thrust=config.thrust[f],
-        )
-        inputs["geometry"] = tuple(inputs["geometry"])
-        root = _illinois(
-            lambda v, index, inputs=inputs, c=challenger: _gap(v, index, inputs, c, exhaust_speed, config),
-            low, high, gap_low, gap_high,
-        )
+        brackets = {
+            "low": v_grid[i], "high": v_grid[i + 1], "gap_low": gap[b, i, t, p, f], "gap_high": gap[b, i + 1, t, p, f],
+            "gm": np.array([bodies[k].gm for k in b]), "radius": np.array([bodies[k].radius for k in b]),
+            "soi": np.array([bodies[k].soi for k in b]),
+            "periapsis": np.array([bodies[k].periapsis_radius[0, q] for k, q in zip(b, p, strict=True)]),
+            "target": np.array([bodies[k].target_radius[q, 0] for k, q in zip(b, t, strict=True)]),
+            "apoapsis": np.array([bodies[k].apoapsis_radius[u, q] for k, u, q in zip(b, t, p, strict=True)]),
+            "thrust": config.thrust[f],
+        }
+        groups = [slice(start, start + _BRACKETS_PER_TASK) for start in range(0, b.size, _BRACKETS_PER_TASK)]
+        tasks = (delayed(_solve_brackets)({k: v[g] for k, v in brackets.items()}, challenger, exhaust_speed,
+                                          config.arrival_mass, config.steering) for g in groups)
+        root = np.concatenate(list(runner(tasks)))
         arrays.finite_crossover_v_inf[slot, b, t, p, f] = root / _KM
 
 
-def _gap(speed, index, inputs, challenger, exhaust_speed, config):
-    """Finite cost of ``challenger`` minus that of direct, for the brackets ``index``."""
-    geometry = Geometry(*(value[index] for value in inputs["geometry"]))
-    totals = []
-    for strategy in (challenger, _DIRECT):
-        result, _ = _fly(STRATEGIES[strategy], inputs["gm"][index], inputs["radius"][index],
-                         inputs["soi"][index], geometry, speed, inputs["thrust"][index], exhaust_speed,
-                         config.arrival_mass, config.steering)
-        totals.append(np.where(result.outcome == 0, result.delta_v.sum(axis=0), np.nan))
-    return totals[0] - totals[1]
+def _solve_brackets(brackets, challenger, exhaust_speed, mass, steering) -> np.ndarray:
+    """Illinois iterations for one group of brackets (run in a worker)."""
+    geometry = Geometry(brackets["gm"], brackets["periapsis"], brackets["target"], brackets["apoapsis"])
+
+    def gap(speed, index):
+        sub = Geometry(*(value[index] for value in geometry))
+        totals = []
+        for strategy in (challenger, _DIRECT):
+            result, _ = _fly(STRATEGIES[strategy], brackets["gm"][index], brackets["radius"][index],
+                             brackets["soi"][index], sub, speed, brackets["thrust"][index], exhaust_speed, mass,
+                             steering)
+            totals.append(np.where(result.outcome == 0, result.delta_v.sum(axis=0), np.nan))
+        return totals[0] - totals[1]
+
+    return _illinois(gap, brackets["low"], brackets["high"], brackets["gap_low"], brackets["gap_high"])
 
 
 def _illinois(function, low, high, f_low, f_high):
@@ -232,34 +240,63 @@ def _illinois(function, low, high, f_low, f_high):
     return root
 
 
+def _place(out: FiniteArrays, chunk, result: dict[str, np.ndarray]) -> None:
+    """Write one chunk's arrays into the full output (in memory or a shared memory map)."""
+    speeds = slice(chunk.v_inf_start, chunk.v_inf_stop)
+    for name, values in result.items():
+        target = getattr(out, name)
+        if name in ("finite_best_strategy", "finite_saving_over_direct"):
+            target[chunk.body, speeds] = values
+        elif values.ndim == 6:
+            target[:, :, chunk.body, speeds] = values
+        else:
+            target[:, chunk.body, speeds] = values
+
+
+def _run_and_place(out: FiniteArrays, chunk, *args) -> None:
+    _place(out, chunk, _run_chunk(*args))
+
+
+def _shared_folder() -> str | None:
+    """A memory-backed folder for the workers' shared output, where the system has one."""
+    return "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
+
+
 def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
-                    points_per_chunk: int = 1 << 15) -> FiniteArrays:
-    """Run every strategy with the finite-burn model; ``plans`` are the impulsive per-body plans."""
-    out = FiniteArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype) in finite_layout(config).items()})
+                    points_per_chunk: int = 1 << 14) -> FiniteArrays:
+    """
+    Run every strategy with the finite-burn model; ``plans`` are the impulsive per-body plans.
+
+    With several workers the processes write straight into memory-mapped output arrays (files
+    in a memory-backed folder where there is one, removed as soon as the workers finish).
+    """
+    layout = finite_layout(config)
     bodies = [
         _BodyInputs(body.gm, body.radius, body.sphere_of_influence, plan.geometry.periapsis_radius,
                     plan.geometry.target_radius, np.asarray(plan.geometry.apoapsis_radius), plan.status)
         for body, plan in zip(config.bodies, plans, strict=True)
     ]
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
-    nthrust = config.thrust.size
-    work = chunks(config.shape, max(points_per_chunk // nthrust, 1))
+    work = chunks(config.shape, max(points_per_chunk // config.thrust.size, 1))
+    processes = min(workers, len(work))
     logger.info("finite burns: %d points in %d chunks on %d processes", int(np.prod(config.finite_shape)),
-                len(work), workers)
-    tasks = (delayed(_run_chunk)(bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop], config.thrust,
-                                 exhaust_speed, config.arrival_mass, config.steering) for c in work)
-    runner = Parallel(n_jobs=min(workers, len(work)), backend="loky" if workers > 1 else "sequential",
-                      return_as="generator")
-    for chunk, result in tqdm(zip(work, runner(tasks), strict=True), total=len(work), disable=not progress,
-                              unit="chunk", desc="finite burns"):
-        speeds = slice(chunk.v_inf_start, chunk.v_inf_stop)
-        for name, values in result.items():
-            target = getattr(out, name)
-            if name in ("finite_best_strategy", "finite_saving_over_direct"):
-                target[chunk.body, speeds] = values
-            elif values.ndim == 6:
-                target[:, :, chunk.body, speeds] = values
-            else:
-                target[:, chunk.body, speeds] = values
-    _crossovers(config, bodies, out)
+                len(work), processes)
+    folder = tempfile.mkdtemp(prefix="capsweep-", dir=_shared_folder()) if processes > 1 else None
+    runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential", return_as="generator")
+    try:
+        # With several processes the workers write into memory maps; once they are done the files
+        # are removed and the maps, still open here, are the result: nothing is pickled back.
+        out = FiniteArrays(**{
+            name: np.empty(shape, dtype) if folder is None else np.lib.format.open_memmap(
+                os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
+            for name, (shape, dtype) in layout.items()})
+        tasks = (delayed(_run_and_place)(out, c, bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop],
+                                         config.thrust, exhaust_speed, config.arrival_mass, config.steering)
+                 for c in work)
+        for _ in tqdm(runner(tasks), total=len(work), disable=not progress, unit="chunk", desc="finite burns"):
+            pass
+    finally:
+        if folder is not None:
+            shutil.rmtree(folder, ignore_errors=True)
+    _crossovers(config, bodies, out, runner)
     return out
