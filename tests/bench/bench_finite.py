@@ -178,7 +178,7 @@ def main(argv=None) -> int:
     print(f"ratio solve_ivp / vectorized per point: {ratio:.0f}x  target >= {RATIO_TARGET:.0f}x: "
           f"{'PASS' if ratio >= RATIO_TARGET else 'FAIL'}")
 
-    speeds = max(4, int(round(24 * args.grid_scale)))
+    speeds = max(4, int(round(400 * args.grid_scale)))
     config = parse_config(SWEEP.format(speeds=speeds), "bench-finite.toml")
     finite_points = int(np.prod(config.finite_shape))
     timings = {}
