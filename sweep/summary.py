@@ -235,10 +235,10 @@ def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int
             p = feasible[0]
             finite = dataset["finite_crossover_v_inf"].values[b, t, p, f]
             impulsive = dataset["crossover_v_inf"].values[b, t, p]
-            text = (f"above {finite:.2f} km/s" if np.isfinite(finite)
-                    else "at no crossover within the grid's speeds (see the engine-limited shares)")
+            text = (f"pays above {finite:.2f} km/s" if np.isfinite(finite)
+                    else "has no crossover with direct within the grid's speeds")
             sentences.append(f"at T/W {ratio:.3g} ({thrust:,.0f} N) `two_burn` with periapsis {_km(periapses[p])} "
-                             f"pays {text} (impulsive: {_speed(impulsive)})")
+                             f"{text} (impulsive: {_speed(impulsive)})")
     lines.append("")
     if sentences:
         lines += ["In short: " + "; ".join(sentences) + ".", ""]
