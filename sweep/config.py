@@ -15,10 +15,11 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator
+from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag, ValidationError, field_validator
 
 from sweep.catalog import Body, catalog, resolve_body
 from sweep.errors import CatalogError, ConfigError
+from sweep.physics.conics import hohmann_excess_speeds
 from sweep.physics.rocket import STANDARD_GRAVITY
 
 __all__ = [
@@ -45,11 +46,32 @@ class AxisRange(_Model):
     spacing: Literal["linear", "log"] = "linear"
 
 
+class HohmannArrival(_Model):
+    """Arrival speeds from a Hohmann transfer from another body with the same parent, plus margins."""
+
+    hohmann_from: Annotated[str, Field(min_length=1)]
+    margin: list[float] | AxisRange = [0.0]  # km/s added to the Hohmann arrival speed
+
+
+def _v_inf_kind(value: Any) -> str:
+    if isinstance(value, dict):
+        return "hohmann" if "hohmann_from" in value else "range"
+    return "list"
+
+
+VInfAxis = Annotated[
+    Annotated[list[float], Tag("list")]
+    | Annotated[AxisRange, Tag("range")]
+    | Annotated[HohmannArrival, Tag("hohmann")],
+    Discriminator(_v_inf_kind),
+]
+
+
 class Grid(_Model):
     """The swept axes, in the order they become cube dimensions."""
 
     bodies: Annotated[list[str], Field(min_length=1)]
-    v_inf: list[float] | AxisRange  # km/s
+    v_inf: VInfAxis  # km/s
     target_altitude: list[float] | AxisRange  # km
     periapsis_altitude: list[float] | AxisRange  # km
     # Optional finite-burn axis, one of the two: engine thrust, or initial thrust-to-weight
@@ -132,6 +154,7 @@ class SweepConfig:
     description: str
     bodies: tuple[Body, ...]
     v_inf: np.ndarray  # km/s
+    v_inf_note: str  # how the axis was set (e.g. a Hohmann transfer), "" for plain values
     target_altitude: np.ndarray  # km
     periapsis_altitude: np.ndarray  # km
     specific_impulse: float  # s
@@ -156,12 +179,18 @@ class SweepConfig:
         return (*self.shape, self.thrust.size) if self.thrust is not None else ()
 
 
+_UNION_MEMBERS = ("list[", "AxisRange", "HohmannArrival", "list", "range", "hohmann")  # pydantic loc parts
+
+
 def _key_path(loc: tuple) -> str:
-    return ".".join(str(part) for part in loc if not str(part).startswith(("list[", "AxisRange")))
+    return ".".join(str(part) for part in loc if not str(part).startswith(_UNION_MEMBERS))
 
 
-def _fields_at(loc: tuple) -> list[str]:
+def _fields_at(loc: tuple, full_loc: tuple = ()) -> list[str]:
     """Valid keys of the table at ``loc`` (the path of an unknown key, without the key)."""
+    for tag, member in (("hohmann", HohmannArrival), ("range", AxisRange), ("AxisRange", AxisRange)):
+        if tag in full_loc[:-1]:
+            return sorted(member.model_fields)
     model: Any = ConfigFile
     for part in loc:
         if isinstance(part, int) or model is None:
@@ -182,7 +211,7 @@ def _describe(error: dict, path: str) -> str:
     loc = tuple(error["loc"])
     key = _key_path(loc)
     if error["type"] == "extra_forbidden":
-        valid = _fields_at(tuple(p for p in loc[:-1] if not str(p).startswith(("list[", "AxisRange"))))
+        valid = _fields_at(tuple(p for p in loc[:-1] if not str(p).startswith(_UNION_MEMBERS)), loc)
         close = difflib.get_close_matches(str(loc[-1]), valid, n=1)
         hint = f"; did you mean {close[0]!r}?" if close else ""
         return f"{path}: unknown key {key!r}{hint} (valid keys here: {', '.join(valid)})"
@@ -248,7 +277,8 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         raise ConfigError(_describe(_pick_error(err.errors()), path)) from err
 
     grid = model.grid
-    v_inf = _axis_values(grid.v_inf, "grid.v_inf", path)
+    bodies = _resolve_bodies(grid.bodies, model.bodies, path)
+    v_inf, v_inf_note = _v_inf_axis(grid.v_inf, bodies, model.bodies, path)
     target = _axis_values(grid.target_altitude, "grid.target_altitude", path)
     periapsis = _axis_values(grid.periapsis_altitude, "grid.periapsis_altitude", path)
     above_surface = "altitudes must be >= 0 km (above the mean surface)"
@@ -264,8 +294,9 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
     return SweepConfig(
         name=model.name,
         description=model.description,
-        bodies=_resolve_bodies(grid.bodies, model.bodies, path),
+        bodies=bodies,
         v_inf=v_inf,
+        v_inf_note=v_inf_note,
         target_altitude=target,
         periapsis_altitude=periapsis,
         specific_impulse=model.spacecraft.specific_impulse,
@@ -281,6 +312,45 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         text=text,
         path=path,
     )
+
+
+def _v_inf_axis(axis, bodies: tuple[Body, ...], defined: dict[str, BodyFields], path: str) -> tuple[np.ndarray, str]:
+    """Arrival speeds in km/s: plain values, or a Hohmann arrival speed plus margins."""
+    if not isinstance(axis, HohmannArrival):
+        return _axis_values(axis, "grid.v_inf", path), ""
+    key = "grid.v_inf.hohmann_from"
+    name = axis.hohmann_from.strip().lower()
+    if len(bodies) != 1:
+        raise ConfigError(
+            f"{path}: {key}: a Hohmann arrival speed belongs to one arrival body, but grid.bodies has "
+            f"{len(bodies)}; run one config per body (got {axis.hohmann_from!r})"
+        )
+    target = bodies[0]
+    try:
+        origin = resolve_body(name, {k: v.model_dump() for k, v in defined.items()}, origin=path)
+    except CatalogError as err:
+        close = difflib.get_close_matches(name, sorted(catalog()), n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise ConfigError(f"{path}: {key}: unknown body {axis.hohmann_from!r}{hint}") from err
+    if origin.name == target.name or origin.parent != target.parent or not origin.parent:
+        raise ConfigError(
+            f"{path}: {key}: {origin.name!r} and {target.name!r} must be different bodies orbiting the same "
+            f"parent (they orbit {origin.parent or 'nothing'!r} and {target.parent!r})"
+        )
+    parent_gm = target.parent_gm
+    _, arrival = hohmann_excess_speeds(parent_gm, origin.semi_major_axis, target.semi_major_axis)
+    base = float(arrival) / 1e3
+    margins = _axis_values(axis.margin, "grid.v_inf.margin", path)
+    values = base + margins
+    if values.min() < 0:
+        raise ConfigError(
+            f"{path}: grid.v_inf.margin: the Hohmann arrival speed is {base:.4f} km/s, so margins below "
+            f"{-base:.4f} km/s give negative speeds (got {float(margins.min())!r})"
+        )
+    note = (f"Hohmann transfer from {origin.name} to {target.name} (circular coplanar orbits, semi-major axes "
+            f"from the catalog): arrival speed {base:.4f} km/s, plus margins {', '.join(f'{m:g}' for m in margins)} "
+            "km/s")
+    return values, note
 
 
 def _thrust_axis(grid: Grid, arrival_mass: float, path: str) -> tuple[np.ndarray | None, str]:

@@ -130,7 +130,8 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
     bodies = config.bodies
     names = strategy_names()
     coords = {
-        "v_inf": ("v_inf", config.v_inf, _attrs("km s-1", "hyperbolic arrival speed (v-infinity)")),
+        "v_inf": ("v_inf", config.v_inf, _attrs("km s-1", "hyperbolic arrival speed (v-infinity)",
+                                                **({"comment": config.v_inf_note} if config.v_inf_note else {}))),
         "target_altitude": ("target_altitude", config.target_altitude,
                             _attrs("km", "altitude of the circular target orbit above the mean radius")),
         "periapsis_altitude": ("periapsis_altitude", config.periapsis_altitude,

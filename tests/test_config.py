@@ -118,3 +118,46 @@ def test_missing_and_unreadable_files(tmp_path):
     binary.write_bytes(b"\xff\xfe\x00name")
     with pytest.raises(ConfigError, match=r"binary\.toml: config file is not UTF-8 text"):
         load_config(binary)
+
+
+HOHMANN = """
+name = "hohmann-test"
+[grid]
+bodies = ["mars"]
+v_inf = { hohmann_from = "earth", margin = [0.0, 0.5] }
+target_altitude = [400.0]
+periapsis_altitude = [250.0]
+[spacecraft]
+specific_impulse = 320.0
+arrival_mass = 1000.0
+"""
+
+
+def test_hohmann_arrival_axis():
+    from sweep.catalog import catalog
+    from sweep.physics.conics import hohmann_excess_speeds
+
+    config = parse_config(HOHMANN, "h.toml")
+    bodies = catalog()
+    # independent of the config path: the kernel on the catalog's Earth and Mars orbits
+    _, arrival = hohmann_excess_speeds(bodies["sun"].gm, bodies["earth"].semi_major_axis,
+                                       bodies["mars"].semi_major_axis)
+    np.testing.assert_allclose(config.v_inf, [arrival / 1e3, arrival / 1e3 + 0.5], rtol=1e-12)
+    # Curtis Example 8.5 (from memory) prints 2.648 km/s with rounded orbit radii: 1 m/s apart
+    assert config.v_inf[0] == pytest.approx(2.648, abs=2e-3)
+    assert "Hohmann transfer from earth to mars" in config.v_inf_note
+
+
+@pytest.mark.parametrize(
+    ("old", "new", "message"),
+    [
+        ('"earth", margin', '"earht", margin', r"h\.toml: grid\.v_inf\.hohmann_from: unknown body 'earht'; did you mean 'earth'\?"),
+        ('"earth", margin', '"moon", margin', r"grid\.v_inf\.hohmann_from: 'moon' and 'mars' must be different bodies orbiting the same parent"),
+        ('bodies = ["mars"]', 'bodies = ["mars", "venus"]', r"grid\.v_inf\.hohmann_from: a Hohmann arrival speed belongs to one arrival body, but grid\.bodies has 2"),
+        ("margin = [0.0, 0.5]", "margn = [0.0]", r"unknown key 'grid\.v_inf\.margn'; did you mean 'margin'\? \(valid keys here: hohmann_from, margin\)"),
+        ("margin = [0.0, 0.5]", "margin = [-9.0]", r"grid\.v_inf\.margin: the Hohmann arrival speed is 2\.6\d+ km/s, so margins below"),
+    ],
+)
+def test_hohmann_axis_errors(old, new, message):
+    with pytest.raises(ConfigError, match=message):
+        parse_config(HOHMANN.replace(old, new), "h.toml")

@@ -25,6 +25,7 @@ __all__ = [
     "circular_speed",
     "half_period",
     "hill_radius",
+    "hohmann_excess_speeds",
     "hyperbolic_periapsis_speed",
     "sphere_of_influence_radius",
 ]
@@ -201,3 +202,41 @@ def hill_radius(semi_major_axis: ArrayLike, gm: ArrayLike, gm_parent: ArrayLike)
     Distance to the L1/L2 points in the restricted three-body problem ([3]_).
     """
     return _positive(semi_major_axis) * (np.asarray(gm) / (3.0 * gm_parent)) ** (1.0 / 3.0)
+
+
+def hohmann_excess_speeds(gm_parent: ArrayLike, departure_radius: ArrayLike, arrival_radius: ArrayLike):
+    r"""
+    Hyperbolic excess speeds at both ends of a Hohmann transfer between two circular,
+    coplanar orbits about a common parent (patched conics).
+
+    Parameters
+    ----------
+    gm_parent : numeric
+        Gravitational parameter of the common parent. [m^3/s^2]
+    departure_radius, arrival_radius : numeric
+        Orbit radii of the departure and arrival bodies about the parent. [m]
+
+    Returns
+    -------
+    departure, arrival : numeric
+        :math:`|v_{transfer} - v_{body}|` at each end: the excess speed leaving the departure
+        body and arriving at the arrival body; NaN where a radius <= 0. [m/s]
+
+    Notes
+    -----
+    Each body moves on its circle at :math:`\sqrt{\mu/r}`; the transfer ellipse has its apsides
+    at the two radii, so its speed at each end is :func:`apsis_speed` ([1]_ Ch. 8).
+
+    Examples
+    --------
+    >>> mu, earth, mars = 1.327e20, 149.6e9, 227.9e9
+    >>> [round(float(v)) for v in hohmann_excess_speeds(mu, earth, mars)]
+    [2943, 2648]
+    """
+    departure = np.abs(
+        apsis_speed(gm_parent, departure_radius, arrival_radius) - circular_speed(gm_parent, departure_radius)
+    )
+    arrival = np.abs(
+        apsis_speed(gm_parent, arrival_radius, departure_radius) - circular_speed(gm_parent, arrival_radius)
+    )
+    return departure, arrival

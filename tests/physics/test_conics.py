@@ -10,6 +10,7 @@ from sweep.physics.conics import (
     circular_speed,
     half_period,
     hill_radius,
+    hohmann_excess_speeds,
     hyperbolic_periapsis_speed,
     sphere_of_influence_radius,
 )
@@ -94,3 +95,12 @@ def test_hill_radius_exceeds_sphere_of_influence_for_planets():
     ratio = sphere_of_influence_radius(a, gm, gm_sun) / hill_radius(a, gm, gm_sun)
     assert ratio == pytest.approx(3 ** (1 / 3) * (gm / gm_sun) ** (1 / 15), rel=1e-12)
     assert ratio < 1
+
+
+def test_hohmann_excess_speeds_curtis_examples_8_4_and_8_5():
+    # Curtis, Orbital Mechanics for Engineering Students, Examples 8.4 and 8.5 (Earth to Mars
+    # Hohmann transfer; from memory): mu_sun = 1.327e11 km3/s2, orbit radii 149.6e6 km and
+    # 227.9e6 km; printed v_inf = 2.943 km/s leaving Earth and 2.648 km/s arriving at Mars.
+    departure, arrival = hohmann_excess_speeds(1.327e20, 149.6e9, 227.9e9)
+    assert departure == pytest.approx(2943.0, abs=1.0)  # printed to 1 m/s
+    assert arrival == pytest.approx(2648.0, abs=1.0)

@@ -190,9 +190,9 @@ def test_spread_delta_v_within_1_m_s_of_reference(steering):
 def test_spread_apsides_match_reference(steering):
     # independent: solve_ivp reference. Measured max relative difference of the reached
     # periapsis and apoapsis over every burn: 1.4e-6 and 6.0e-7 (tangential), 2.3e-7 and
-    # 1.4e-7 (inertial). Tolerance 1e-5 relative, seven times the measured worst. (A delta-v error dv moves the orbit by ~2 dv/v relative, so
-    # this corresponds to ~0.01 m/s at 2 km/s: tighter than the 1 m/s acceptance, set from
-    # the measurement.)
+    # 1.4e-7 (inertial). Tolerance 1e-5 relative, seven times the measured worst. (A delta-v
+    # error dv moves the orbit by ~2 dv/v relative, so this corresponds to ~0.01 m/s at 2 km/s:
+    # tighter than the 1 m/s acceptance, set from the measurement.)
     for point, ref, vec in _flown(steering):
         np.testing.assert_allclose(vec["periapsis_radius"], ref.periapsis_radius, rtol=1e-5, err_msg=str(point[:4]))
         np.testing.assert_allclose(vec["apoapsis_radius"], ref.apoapsis_radius, rtol=1e-5, err_msg=str(point[:4]))
