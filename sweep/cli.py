@@ -51,9 +51,13 @@ def _build_parser() -> argparse.ArgumentParser:
 
     commands.add_parser("bodies", help="list the body catalog with each value's source")
 
-    summarize_parser = commands.add_parser("summarize", help="rebuild the summary from an existing cube")
+    summarize_parser = commands.add_parser("summarize", help="rebuild the summary and figures from an existing cube")
     summarize_parser.add_argument("cube", type=Path, help="netCDF cube written by capsweep run")
     summarize_parser.add_argument("--out", type=Path, help="output folder (default: the cube's folder)")
+
+    plot_parser = commands.add_parser("plot", help="draw the PNG figures from an existing cube")
+    plot_parser.add_argument("cube", type=Path, help="netCDF cube written by capsweep run")
+    plot_parser.add_argument("--out", type=Path, help="output folder (default: the cube's folder)")
     return parser
 
 
@@ -74,14 +78,26 @@ def _run(args: argparse.Namespace) -> int:
     dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet)
     elapsed = time.perf_counter() - started
     cube = _write(lambda: write_dataset(dataset, folder / f"{config.name}.nc"), folder)
+    figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
     files = _write(lambda: write_summary(dataset, folder), folder)
     points = int(dataset["best_strategy"].size)
     print(f"cube: {cube}")
     print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
+    print(_figures_line(figures, folder))
     if not args.quiet:
         print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated in {elapsed:.2f} s")
         print(_short_answer(dataset))
     return 0
+
+
+def _write_figures(dataset: xr.Dataset, folder: Path) -> list[Path]:
+    from sweep.plots import write_figures  # here, not above: matplotlib loads only for commands that draw
+
+    return write_figures(dataset, folder)
+
+
+def _figures_line(figures: list[Path], folder: Path) -> str:
+    return f"figures: {len(figures)} PNG files in {folder}"
 
 
 def _write(action, folder: Path):
@@ -137,22 +153,38 @@ def _bodies(_: argparse.Namespace) -> int:
     return 0
 
 
-def _summarize(args: argparse.Namespace) -> int:
+def _open_cube(path: Path) -> xr.Dataset:
+    """Open a cube written by ``capsweep run``, or raise SweepError naming the file and what is wrong."""
     try:
-        dataset = xr.open_dataset(args.cube, engine="netcdf4")
+        dataset = xr.open_dataset(path, engine="netcdf4")
     except FileNotFoundError as err:
-        raise SweepError(f"{args.cube}: cube not found") from err
+        raise SweepError(f"{path}: cube not found") from err
     except (OSError, ValueError) as err:
         reason = str(err).splitlines()[0] if str(err) else type(err).__name__
-        raise SweepError(f"{args.cube}: not a readable netCDF cube ({reason})") from err
-    with dataset:
-        missing = [v for v in ("best_strategy", "saving_over_direct", "status", "crossover_v_inf")
-                   if v not in dataset]
-        if missing:
-            raise SweepError(f"{args.cube}: not a capsweep cube (lacks {', '.join(missing)})")
+        raise SweepError(f"{path}: not a readable netCDF cube ({reason})") from err
+    missing = [v for v in ("best_strategy", "saving_over_direct", "status", "crossover_v_inf") if v not in dataset]
+    if missing:
+        dataset.close()
+        raise SweepError(f"{path}: not a capsweep cube (lacks {', '.join(missing)})")
+    return dataset
+
+
+def _summarize(args: argparse.Namespace) -> int:
+    folder = args.out or args.cube.parent
+    with _open_cube(args.cube) as dataset:
         summary_tables(dataset)  # fail before writing anything if the cube is inconsistent
-        files = _write(lambda: write_summary(dataset, args.out or args.cube.parent), args.out or args.cube.parent)
+        figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
+        files = _write(lambda: write_summary(dataset, folder), folder)
     print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
+    print(_figures_line(figures, folder))
+    return 0
+
+
+def _plot(args: argparse.Namespace) -> int:
+    folder = args.out or args.cube.parent
+    with _open_cube(args.cube) as dataset:
+        figures = _write(lambda: _write_figures(dataset, folder), folder)
+    print(_figures_line(figures, folder))
     return 0
 
 
@@ -162,7 +194,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     level = {0: logging.WARNING, 1: logging.INFO}.get(getattr(args, "verbose", 0), logging.DEBUG)
     logging.basicConfig(level=level, format="capsweep: %(message)s")
-    handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize}
+    handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot}
     try:
         return handlers[args.command](args)
     except SweepError as err:

@@ -248,8 +248,14 @@ def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int
     return lines
 
 
-def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) -> str:
-    """Markdown report: per body and target, where each strategy wins and by how much."""
+def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None,
+                   figures: list[tuple[str, str, str]] | None = None) -> str:
+    """
+    Markdown report: per body and target, where each strategy wins and by how much.
+
+    ``figures``: (body, file name, title) of PNG files beside the summary, shown in each body's
+    section; none by default.
+    """
     tables = tables or summary_tables(dataset)
     bodies, names = _labels(dataset)
     sentences = answers(dataset, tables)
@@ -282,6 +288,8 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
             f"{float(dataset['apoapsis_bound'][b]):,.0f} km.",
             "",
         ]
+        for _, name, title in [f for f in figures or [] if f[0] == body]:
+            lines += [f"![{title}]({name})", ""]
         for t, target in enumerate(dataset["target_altitude"].values):
             lines += [f"### {body.capitalize()}, {_km(target)} circular orbit", "",
                       sentences[body][t], ""]
@@ -307,8 +315,8 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
         "Winner: the feasible strategy with the least total delta-v at that grid point; `none` where no "
         "strategy is feasible. Crossover speeds are roots of the model's cost difference, not grid "
         "values. Files beside this one: wins.csv, crossover.csv, shares.csv (and, with a thrust axis, "
-        "finite_crossover.csv and finite_losses.csv). Gravity loss: finite-burn delta-v minus impulsive "
-        "delta-v for the same strategy and point.",
+        "finite_crossover.csv and finite_losses.csv)" + (", and the PNG figures shown above" if figures else "")
+        + ". Gravity loss: finite-burn delta-v minus impulsive delta-v for the same strategy and point.",
         "",
         f"**Caution.** {dataset.attrs.get('comment', '')}",
         "",
@@ -317,7 +325,14 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
 
 
 def write_summary(dataset: xr.Dataset, folder: str | Path) -> list[Path]:
-    """Write summary.md and the CSV tables into ``folder``; return the paths written."""
+    """
+    Write summary.md and the CSV tables into ``folder``; return the paths written.
+
+    The figures of :func:`sweep.plots.write_figures` already in ``folder`` are linked from
+    summary.md (write them first); missing ones are left out.
+    """
+    from sweep.plots import figure_files  # here, not above: matplotlib loads only when a summary is written
+
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     tables = summary_tables(dataset)
@@ -327,5 +342,6 @@ def write_summary(dataset: xr.Dataset, folder: str | Path) -> list[Path]:
         table.to_csv(path, index=False, float_format="%.6g")
         written.append(path)
     path = folder / "summary.md"
-    path.write_text(render_summary(dataset, tables), encoding="utf-8")
+    figures = [figure for figure in figure_files(dataset) if (folder / figure[1]).is_file()]
+    path.write_text(render_summary(dataset, tables, figures), encoding="utf-8")
     return [path, *written]

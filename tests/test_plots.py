@@ -1,0 +1,208 @@
+"""Figures: drawn from the cube alone, valid PNGs of a sensible size, not blank, winners in the right colours."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+from matplotlib.image import imread
+from matplotlib.lines import Line2D
+
+from sweep import parse_config, run
+from sweep.cli import main
+from sweep.plots import DPI, draw_figure, figure_files, fill_colour, write_figures
+from sweep.summary import render_summary, write_summary
+from tests.test_evaluate_finite import FINITE_CONFIG
+
+# PNG specification (W3C / ISO/IEC 15948), section 5.2: the eight signature bytes of every PNG file.
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+# A colour counts as a map fill when every channel is within 1.5/255 of it: the PNG stores 8-bit
+# channels, so a cell interior can differ from the float colour by rounding (half a step) only.
+FILL_TOLERANCE = 1.5 / 255
+
+
+@pytest.fixture(scope="module")
+def finite_cube():
+    config = parse_config(FINITE_CONFIG, "finite.toml")
+    return config, run(config, workers=1)
+
+
+def _draw_strictly(dataset, folder):
+    # Matplotlib's warnings (no contour levels found, a layout that collapsed) would mean a broken figure.
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        return write_figures(dataset, folder)
+
+
+@pytest.fixture(scope="module")
+def small_figures(small_cube, tmp_path_factory):
+    _, cube = small_cube
+    folder = tmp_path_factory.mktemp("figures")
+    return cube, folder, _draw_strictly(cube, folder)
+
+
+def _count(image: np.ndarray, colour) -> int:
+    """Pixels of the image drawn in ``colour`` (RGB, 0-1)."""
+    return int(np.all(np.abs(image[..., :3] - np.asarray(colour)) <= FILL_TOLERANCE, axis=-1).sum())
+
+
+def _pixels(figure) -> np.ndarray:
+    figure.canvas.draw()
+    return np.asarray(figure.canvas.buffer_rgba(), dtype=float) / 255.0
+
+
+def test_every_listed_figure_is_written_and_no_finite_ones_without_thrust(small_figures):
+    cube, folder, paths = small_figures
+    assert paths == [folder / name for _, name, _ in figure_files(cube)]
+    assert {p.name for p in paths} == {f"{kind}_{body}.png" for kind in ("winner", "saving")
+                                       for body in ("mars", "moon", "enceladus")}
+    assert ("mars", "winner_mars.png", "Mars: cheapest capture strategy") in figure_files(cube)
+
+
+def test_figures_are_pngs_of_a_sensible_size_and_not_blank(small_figures):
+    _, _, paths = small_figures
+    for path in paths:
+        assert path.read_bytes()[:8] == PNG_SIGNATURE, path.name
+        image = imread(path)  # raises on a damaged file
+        height, width = image.shape[:2]
+        # readable on a screen or a page at the figures' DPI: 4 to 20 inches wide, 3 to 14 high
+        assert 4 * DPI <= width <= 20 * DPI and 3 * DPI <= height <= 14 * DPI, (path.name, width, height)
+        rgb = image[..., :3]
+        # Not blank: a blank image has one colour and a standard deviation of 0. Text and axes alone
+        # give a few dozen anti-aliased greys; these figures measured 256 to 1014 colours and a
+        # standard deviation of 0.14 to 0.23 (of a 0-1 scale), so 100 and 0.08 leave a wide margin.
+        colours = np.unique((rgb * 255).round().astype(np.uint8).reshape(-1, 3), axis=0)
+        assert len(colours) > 100, (path.name, len(colours))
+        assert rgb.std() > 0.08, (path.name, rgb.std())
+
+
+def test_winner_maps_fill_the_cube_winners_in_their_colours(small_figures):
+    cube, folder, _ = small_figures
+    names = list(cube.strategy_name.values)
+    mars = cube.best_strategy.isel(body=0).values
+    assert set(np.unique(mars)) == {names.index("direct"), names.index("three_burn")}  # the cube says so
+    image = imread(folder / "winner_mars.png")
+    # A strategy that wins nowhere appears only as its legend patch: 2.6 x 0.7 em at 8 pt and 120 DPI,
+    # about 35 x 9 pixels (measured: 264 to 306). One grid cell of a panel is larger than that, and
+    # a winner fills many cells (measured: over 150,000 pixels each here).
+    legend_patch, cells = 600, 10_000
+    assert _count(image, fill_colour("direct", 0)) > cells
+    assert _count(image, fill_colour("three_burn", 2)) > cells
+    assert _count(image, fill_colour("two_burn", 1)) < legend_patch
+    # Enceladus: nothing is feasible (sphere of influence too small), so the map is grey
+    assert (cube.best_strategy.isel(body=2).values == -1).all()
+    image = imread(folder / "winner_enceladus.png")
+    assert _count(image, fill_colour(None)) > cells
+    for index, name in enumerate(names):
+        assert _count(image, fill_colour(name, index)) < legend_patch
+
+
+def test_figures_draw_the_cube_not_recomputed_physics(small_cube):
+    # Edit the cube: figures that recomputed physics would not show the edited values.
+    _, cube = small_cube
+    edited = cube.copy(deep=True)
+    two_burn = list(cube.strategy_name.values).index("two_burn")
+    edited["best_strategy"][0] = two_burn
+    edited["crossover_v_inf"][0, :, 1] = 4.321
+    figure = draw_figure(edited, "winner", "mars")
+    assert _count(_pixels(figure), fill_colour("two_burn", two_burn)) > 100_000
+    lines = [line for ax in figure.axes for line in ax.get_lines()]
+    assert any(np.isclose(np.asarray(line.get_xdata(), dtype=float), 4.321).all() for line in lines)
+    assert not any(np.isclose(np.asarray(line.get_xdata(), dtype=float), 4.321).any()
+                   for ax in draw_figure(cube, "winner", "mars").axes for line in ax.get_lines())
+
+
+def test_saving_curves_are_the_cube_savings(small_cube):
+    _, cube = small_cube
+    figure = draw_figure(cube, "saving", "mars")
+    curves = [np.asarray(line.get_ydata(), dtype=float) for ax in figure.axes for line in ax.get_lines()
+              if len(line.get_ydata()) == cube.sizes["v_inf"]]
+    saving = cube.saving_over_direct.isel(body=0).values  # (v_inf, target, periapsis)
+    columns = [saving[:, t, p] for t in range(saving.shape[1]) for p in range(saving.shape[2])]
+    assert curves and all(any(np.array_equal(c, s, equal_nan=True) for s in columns) for c in curves)
+    assert max(np.nanmax(c) for c in curves) == np.nanmax(saving)  # the lowest periapsis is always shown
+    assert figure.axes[0].get_ylabel() == "saving over direct, m/s"
+    assert "km/s" in figure.axes[0].get_xlabel()
+
+
+def test_finite_figures_with_a_thrust_axis(finite_cube, tmp_path):
+    _, cube = finite_cube
+    paths = _draw_strictly(cube, tmp_path)
+    names = {p.name for p in paths}
+    assert {"finite_winner_mars.png", "finite_crossover_mars.png", "finite_winner_moon.png",
+            "finite_crossover_moon.png"} <= names
+    for path in paths:
+        assert path.read_bytes()[:8] == PNG_SIGNATURE
+        assert imread(path)[..., :3].std() > 0.08  # not blank, as above
+    # The crossover figure plots the cube's finite crossovers at the lowest feasible periapsis below
+    # each target (250 km here for both targets) against T/W, with the impulsive ones as lines.
+    figure = draw_figure(cube, "finite_crossover", "mars")
+    plotted = np.concatenate([np.asarray(line.get_ydata(), dtype=float) for ax in figure.axes
+                              for line in ax.get_lines() if isinstance(line, Line2D)])
+    mars = cube.isel(body=0).sel(periapsis_altitude=250.0)
+    for name in ("finite_crossover_v_inf", "finite_three_burn_crossover_v_inf",
+                 "crossover_v_inf", "three_burn_crossover_v_inf"):
+        expected = mars[name].values.ravel()
+        expected = expected[np.isfinite(expected)]
+        assert expected.size and np.isin(expected, plotted).all(), name
+    assert "thrust-to-weight" in figure.axes[0].get_xlabel() or any(
+        "thrust-to-weight" in ax.get_xlabel() for ax in figure.axes)
+    titles = [ax.get_title() for ax in draw_figure(cube, "finite_winner", "mars").axes]
+    assert "1,961 N, T/W 0.2" in titles and "9,807 N, T/W 1" in titles  # T = (T/W) x 1000 kg x 9.80665 m/s2
+
+
+def test_draw_figure_rejects_unknown_kinds_and_bodies(small_cube):
+    _, cube = small_cube
+    with pytest.raises(ValueError, match=r"unknown figure kind 'finite_winner' for this cube"):
+        draw_figure(cube, "finite_winner", "mars")  # no thrust axis in the small cube
+    with pytest.raises(ValueError, match=r"body 'venus' is not in the cube"):
+        draw_figure(cube, "winner", "venus")
+
+
+def test_summary_links_the_figures_it_finds(small_cube, tmp_path):
+    _, cube = small_cube
+    assert "![" not in render_summary(cube)  # in memory: no figures
+    write_summary(cube, tmp_path / "bare")
+    assert "![" not in (tmp_path / "bare" / "summary.md").read_text()
+    folder = tmp_path / "drawn"
+    write_figures(cube, folder)
+    text = (write_summary(cube, folder)[0]).read_text()
+    assert "![Mars: cheapest capture strategy](winner_mars.png)" in text
+    assert text.count("![") == len(figure_files(cube))
+    # each body's figures sit in its own section
+    assert text.index("](winner_moon.png)") > text.index("## Moon") > text.index("](saving_mars.png)")
+
+
+def test_run_and_plot_commands_write_the_same_figures(config_file, tmp_path, capsys):
+    out = tmp_path / "out"
+    assert main(["run", str(config_file()), "--out", str(out), "-q"]) == 0
+    printed = capsys.readouterr().out
+    assert f"figures: 6 PNG files in {out}" in printed
+    cube = out / "small-test.nc"
+    names = sorted(p.name for p in out.glob("*.png"))
+    assert names == sorted(f"{kind}_{body}.png" for kind in ("winner", "saving")
+                           for body in ("mars", "moon", "enceladus"))
+    assert "![Moon: saving over direct capture](saving_moon.png)" in (out / "summary.md").read_text()
+    again = tmp_path / "again"
+    assert main(["plot", str(cube), "--out", str(again)]) == 0
+    assert f"figures: 6 PNG files in {again}" in capsys.readouterr().out
+    # Drawn from the file, the figures are the ones drawn from the run's Dataset, byte for byte.
+    for name in names:
+        assert (again / name).read_bytes() == (out / name).read_bytes(), name
+    for path in out.glob("*.png"):
+        path.unlink()
+    assert main(["plot", str(cube)]) == 0  # default: beside the cube
+    assert sorted(p.name for p in out.glob("*.png")) == names
+
+
+def test_plot_errors_exit_2_with_one_line(config_file, tmp_path, capsys):
+    assert main(["plot", str(tmp_path / "nowhere.nc")]) == 2
+    err = capsys.readouterr().err
+    assert err.strip().endswith("nowhere.nc: cube not found") and len(err.strip().splitlines()) == 1
+    out = tmp_path / "out"
+    assert main(["run", str(config_file()), "--out", str(out), "-q"]) == 0
+    blocker = tmp_path / "file"
+    blocker.write_text("not a folder")
+    assert main(["plot", str(out / "small-test.nc"), "--out", str(blocker / "sub")]) == 2
+    assert "cannot write output" in capsys.readouterr().err
