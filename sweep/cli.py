@@ -58,6 +58,15 @@ def _build_parser() -> argparse.ArgumentParser:
     plot_parser = commands.add_parser("plot", help="draw the PNG figures from an existing cube")
     plot_parser.add_argument("cube", type=Path, help="netCDF cube written by capsweep run")
     plot_parser.add_argument("--out", type=Path, help="output folder (default: the cube's folder)")
+
+    universal_parser = commands.add_parser(
+        "universal", help="the dimensionless regime map for every body: cube and figure")
+    universal_parser.add_argument("--out", type=Path, default=_DEFAULT_OUT / "universal",
+                                  help="output folder (default: outputs/universal/)")
+    universal_parser.add_argument("--speed-ratio-max", type=float, default=3.0,
+                                  help="largest v_inf / v_circular(target) swept, from 0 (default 3)")
+    universal_parser.add_argument("--periapsis-ratio-min", type=float, default=0.05,
+                                  help="smallest r_periapsis / r_target swept, up to 3 (default 0.05)")
     return parser
 
 
@@ -188,13 +197,37 @@ def _plot(args: argparse.Namespace) -> int:
     return 0
 
 
+def _universal(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from sweep.plots import DPI, draw_universal_map
+    from sweep.universal import universal_dataset
+
+    if not 0 < args.speed_ratio_max <= 100:
+        raise SweepError(f"--speed-ratio-max must be in (0, 100], got {args.speed_ratio_max!r}")
+    if not 0 < args.periapsis_ratio_min < 3:
+        raise SweepError(f"--periapsis-ratio-min must be in (0, 3), got {args.periapsis_ratio_min!r}")
+    dataset = universal_dataset(np.linspace(0.0, args.speed_ratio_max, 301),
+                                np.geomspace(args.periapsis_ratio_min, 3.0, 121))
+    cube = _write(lambda: write_dataset(dataset, args.out / "universal.nc"), args.out)
+    figure = args.out / "universal_map.png"
+    _write(lambda: draw_universal_map(dataset).savefig(figure, dpi=DPI, facecolor="white",
+                                                       metadata={"Software": None}), args.out)
+    print(f"cube: {cube}")
+    print(f"figure: {figure}")
+    print("In these units a dive below the target pays above v_inf / v_c = sqrt(2) (two_burn) and above "
+          "sqrt(2 r_t / r_a) (three_burn), whatever the body; preliminary patched-conic estimates.")
+    return 0
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status."""
     parser = _build_parser()
     args = parser.parse_args(argv)
     level = {0: logging.WARNING, 1: logging.INFO}.get(getattr(args, "verbose", 0), logging.DEBUG)
     logging.basicConfig(level=level, format="capsweep: %(message)s")
-    handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot}
+    handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot,
+                "universal": _universal}
     try:
         return handlers[args.command](args)
     except SweepError as err:

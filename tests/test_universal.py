@@ -52,3 +52,26 @@ def test_universal_winner_regions():
     # fast arrival with a deep periapsis and a high apoapsis: three_burn
     assert best[1, 0, 1] == 2
     assert (cube.saving_ratio.values >= 0).all()
+
+
+def test_universal_command_writes_cf_cube_and_map(tmp_path, capsys):
+    import matplotlib.image as mpimg
+    import xarray as xr
+    from compliance_checker.runner import CheckSuite, ComplianceChecker
+
+    from sweep.cli import main
+
+    out = tmp_path / "universal"
+    assert main(["universal", "--out", str(out), "--speed-ratio-max", "2.5"]) == 0
+    assert "sqrt(2)" in capsys.readouterr().out
+    with xr.open_dataset(out / "universal.nc") as cube:
+        assert float(cube.speed_ratio.max()) == pytest.approx(2.5)
+    CheckSuite.load_all_available_checkers()  # independent: IOOS compliance-checker, CF-1.11
+    passed, errors = ComplianceChecker.run_checker(str(out / "universal.nc"), ["cf:1.11"], 0, "normal",
+                                                   output_filename=str(tmp_path / "cf.txt"), output_format="text")
+    assert passed and not errors, (tmp_path / "cf.txt").read_text()
+    image = mpimg.imread(out / "universal_map.png")
+    # not blank: a blank page has one colour and zero spread (same yardstick as tests/test_plots.py)
+    assert len(np.unique(image.reshape(-1, image.shape[-1]), axis=0)) > 100 and image.std() > 0.08
+    assert main(["universal", "--out", str(out), "--speed-ratio-max", "0"]) == 2
+    assert "--speed-ratio-max must be in (0, 100], got 0.0" in capsys.readouterr().err
