@@ -14,10 +14,10 @@ import xarray as xr
 from sweep import __version__
 from sweep.catalog import catalog_text
 from sweep.config import SweepConfig
-from sweep.evaluate import CHALLENGERS, SweepArrays
+from sweep.evaluate import SweepArrays
 from sweep.grid import DIMENSIONS
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import NO_STRATEGY, STATUSES, STRATEGIES, strategy_names
+from sweep.strategies import CHALLENGERS, NO_STRATEGY, STATUSES, STRATEGIES, strategy_names
 
 __all__ = ["CAUTION", "REFERENCES", "build_dataset", "open_cube", "write_dataset"]
 

@@ -26,7 +26,7 @@ from sweep.physics.capture import (
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import STATUSES, STRATEGIES, Geometry, pick_best, strategy_names
+from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, Geometry, pick_best
 
 __all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
 
@@ -34,8 +34,6 @@ logger = logging.getLogger(__name__)
 
 _KM = 1.0e3  # m per km
 _CODE = {status.name: code for code, status in enumerate(STATUSES)}
-DIRECT, THREE_BURN = strategy_names().index("direct"), strategy_names().index("three_burn")
-CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # order of crossover_v_inf
 
 
 @dataclass(frozen=True)

@@ -24,7 +24,7 @@ from sweep.config import SweepConfig
 from sweep.grid import chunks
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import STATUSES, STRATEGIES, Geometry, pick_best, strategy_names
+from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, Geometry, pick_best
 
 __all__ = ["FiniteArrays", "evaluate_finite", "finite_layout"]
 
@@ -34,8 +34,6 @@ _KM = 1.0e3  # m per km
 _CODE = {status.name: code for code, status in enumerate(STATUSES)}
 _OUTCOME_CODE = np.array([0] + [_CODE[name] for name in OUTCOMES[1:]], dtype=np.int8)
 _BURNS = max(strategy.burns for strategy in STRATEGIES)
-_DIRECT = strategy_names().index("direct")
-_CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
 _ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
 _BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
@@ -82,7 +80,7 @@ def finite_layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]
         "finite_status": ((count, *shape), np.int8),
         "finite_best_strategy": (shape, np.int8),
         "finite_saving_over_direct": (shape, np.float64),
-        "finite_crossover_v_inf": ((len(_CHALLENGERS), nbody, ntarget, nperiapsis, nthrust), np.float64),
+        "finite_crossover_v_inf": ((len(CHALLENGERS), nbody, ntarget, nperiapsis, nthrust), np.float64),
     }
 
 
@@ -168,8 +166,8 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteAr
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
     v_grid = config.v_inf * _KM
     arrays.finite_crossover_v_inf[...] = np.nan
-    for slot, challenger in enumerate(_CHALLENGERS):
-        gap = arrays.finite_delta_v[challenger] - arrays.finite_delta_v[_DIRECT]  # (B, V, T, P, F)
+    for slot, challenger in enumerate(CHALLENGERS):
+        gap = arrays.finite_delta_v[challenger] - arrays.finite_delta_v[DIRECT]  # (B, V, T, P, F)
         flips = (np.sign(gap[:, :-1]) * np.sign(gap[:, 1:]) < 0)
         first = np.argmax(flips, axis=1)  # (B, T, P, F)
         b, t, p, f = np.nonzero(flips.any(axis=1))
@@ -199,7 +197,7 @@ def _solve_brackets(brackets, challenger, exhaust_speed, mass, steering) -> np.n
     def gap(speed, index):
         sub = Geometry(*(value[index] for value in geometry))
         totals = []
-        for strategy in (challenger, _DIRECT):
+        for strategy in (challenger, DIRECT):
             result, _ = _fly(STRATEGIES[strategy], brackets["gm"][index], brackets["radius"][index],
                              brackets["soi"][index], sub, speed, brackets["thrust"][index], exhaust_speed, mass,
                              steering)

@@ -11,7 +11,10 @@ import numpy as np
 from sweep.physics.capture import Maneuver, direct_capture, three_burn_capture, two_burn_capture
 
 __all__ = [
+    "CHALLENGERS",
+    "DIRECT",
     "NO_STRATEGY",
+    "THREE_BURN",
     "STATUSES",
     "STRATEGIES",
     "Geometry",
@@ -92,6 +95,11 @@ def strategy_names() -> list[str]:
     return [strategy.name for strategy in STRATEGIES]
 
 
+DIRECT = strategy_names().index("direct")  # the reference every saving and crossover is measured against
+THREE_BURN = strategy_names().index("three_burn")
+CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # crossover_v_inf order
+
+
 class Status(NamedTuple):
     """A feasibility code of the cube's ``status`` variable."""
 
@@ -125,7 +133,7 @@ STATUSES: tuple[Status, ...] = (
 )
 
 
-def pick_best(totals: np.ndarray, propellant: np.ndarray, direct: int = 0):
+def pick_best(totals: np.ndarray, propellant: np.ndarray, direct: int = DIRECT):
     """
     Cheapest feasible strategy along axis 0 (first on ties), with the savings over ``direct``.
 
