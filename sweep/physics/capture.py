@@ -40,6 +40,8 @@ from sweep.physics.conics import (
 
 __all__ = [
     "Maneuver",
+    "best_plane_change_split",
+    "combined_burn",
     "best_intermediate_apoapsis",
     "direct_capture",
     "equal_cost_v_inf",
@@ -60,12 +62,38 @@ class Maneuver(NamedTuple):
     time: np.ndarray
 
 
+def combined_burn(speed_before: ArrayLike, speed_after: ArrayLike, angle: ArrayLike) -> np.ndarray:
+    r"""
+    Delta-v of one burn that changes speed and turns the velocity by ``angle``.
+
+    Parameters
+    ----------
+    speed_before, speed_after : numeric
+        Speeds before and after the burn. [m/s]
+    angle : numeric
+        Angle between the two velocity vectors (here: the plane change made in this burn). [rad]
+
+    Returns
+    -------
+    delta_v : numeric
+        :math:`\sqrt{v_1^2 + v_2^2 - 2 v_1 v_2 \cos\theta}`, the law of cosines on the two
+        velocity vectors ([1]_ Ch. 6, plane change maneuvers). [m/s]
+    """
+    before, after = np.asarray(speed_before), np.asarray(speed_after)
+    # (v1 - v2)^2 + 4 v1 v2 sin^2(theta / 2): the same law, without cancellation at small angles;
+    # exactly |v1 - v2| without a turn, so coplanar results do not move.
+    turned = np.sqrt((after - before) ** 2 + 4.0 * before * after * np.sin(0.5 * np.asarray(angle)) ** 2)
+    return np.where(np.equal(angle, 0.0), np.abs(after - before), turned)
+
+
 def _coast(gm, radius, other_apsis):
     """Coast from one apsis to the other; none where the ellipse is a circle (next burn at once)."""
     return np.where(np.equal(radius, other_apsis), 0.0, half_period(gm, radius, other_apsis))
 
 
-def direct_capture(v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike) -> Maneuver:
+def direct_capture(
+    v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike, plane_change: ArrayLike = 0.0
+) -> Maneuver:
     r"""
     One burn at periapsis, placed at the target radius, from the hyperbola to the circle.
 
@@ -77,6 +105,8 @@ def direct_capture(v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike) ->
         Gravitational parameter of the body. [m^3/s^2]
     target_radius : numeric
         Radius of the circular target orbit. [m]
+    plane_change : numeric
+        Plane change made with the capture burn (law of cosines, :func:`combined_burn`). [rad]
 
     Returns
     -------
@@ -95,12 +125,14 @@ def direct_capture(v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike) ->
     >>> round(float(m.burns[0]), 0)
     3590.0
     """
-    burn = hyperbolic_periapsis_speed(v_inf, gm, target_radius) - circular_speed(gm, target_radius)
+    burn = combined_burn(hyperbolic_periapsis_speed(v_inf, gm, target_radius), circular_speed(gm, target_radius),
+                         plane_change)
     return Maneuver((burn,), np.where(np.isnan(burn), np.nan, 0.0))
 
 
 def two_burn_capture(
-    v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike
+    v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike,
+    plane_change: ArrayLike = 0.0, first_share: ArrayLike = 0.0,
 ) -> Maneuver:
     r"""
     Capture at the approach periapsis into the ellipse that touches the target radius,
@@ -117,6 +149,10 @@ def two_burn_capture(
         below the target (a low dive) or above it (capture high, then lower). [m]
     target_radius : numeric
         Radius of the circular target orbit. [m]
+    plane_change : numeric
+        Total plane change. [rad]
+    first_share : numeric
+        Part of it made with the first burn; the rest with the second. [rad]
 
     Returns
     -------
@@ -131,10 +167,10 @@ def two_burn_capture(
     :math:`\Delta v_1 = v_{hyp}(r_p) - v_{ell}(r_p)`,
     :math:`\Delta v_2 = |v_c(r_t) - v_{ell}(r_t)|`.
     """
-    first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
-        gm, periapsis_radius, target_radius
-    )
-    second = np.abs(circular_speed(gm, target_radius) - apsis_speed(gm, target_radius, periapsis_radius))
+    first = combined_burn(hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius),
+                          apsis_speed(gm, periapsis_radius, target_radius), first_share)
+    second = combined_burn(apsis_speed(gm, target_radius, periapsis_radius), circular_speed(gm, target_radius),
+                           np.asarray(plane_change) - first_share)
     return Maneuver((first, second), _coast(gm, periapsis_radius, target_radius))
 
 
@@ -144,6 +180,7 @@ def three_burn_capture(
     periapsis_radius: ArrayLike,
     target_radius: ArrayLike,
     apoapsis_radius: ArrayLike,
+    plane_change: ArrayLike = 0.0,
 ) -> Maneuver:
     r"""
     Capture into a high ellipse, move periapsis to the target radius at its apoapsis, then
@@ -161,6 +198,8 @@ def three_burn_capture(
         Radius of the circular target orbit. [m]
     apoapsis_radius : numeric
         Apoapsis radius of the intermediate ellipse, no smaller than either other radius. [m]
+    plane_change : numeric
+        Plane change, made with the apoapsis burn where the speed is lowest. [rad]
 
     Returns
     -------
@@ -177,26 +216,25 @@ def three_burn_capture(
     ([1]_ Ch. 6; [2]_ Sec. 6.3). With :math:`r_a = r_t \ge r_p` it reduces to
     :func:`two_burn_capture`.
     """
-    burns = _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius)
+    burns = _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change)
     time = _coast(gm, periapsis_radius, apoapsis_radius) + _coast(gm, target_radius, apoapsis_radius)
     return Maneuver(burns, time)
 
 
-def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius):
+def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0):
     """The three burn magnitudes of :func:`three_burn_capture`, without the times."""
     first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
         gm, periapsis_radius, apoapsis_radius
     )
-    second = np.abs(
-        apsis_speed(gm, apoapsis_radius, target_radius) - apsis_speed(gm, apoapsis_radius, periapsis_radius)
-    )
+    second = combined_burn(apsis_speed(gm, apoapsis_radius, periapsis_radius),
+                           apsis_speed(gm, apoapsis_radius, target_radius), plane_change)
     third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius) - circular_speed(gm, target_radius))
     return first, second, third
 
 
-def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius):
+def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0):
     """Total three-burn delta-v at zero arrival speed (the v_inf-free part plus a constant)."""
-    return sum(_three_burn_burns(0.0, gm, periapsis_radius, target_radius, apoapsis_radius))
+    return sum(_three_burn_burns(0.0, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change))
 
 
 def best_intermediate_apoapsis(
@@ -237,24 +275,39 @@ def best_intermediate_apoapsis(
     )
     lower = np.maximum(periapsis_radius, target_radius)
     upper = np.maximum(upper_radius, lower)
-    fraction = np.linspace(0.0, 1.0, _SCAN_POINTS)
-    log_lower, log_upper = np.log(lower)[..., None], np.log(upper)[..., None]
-    log_candidates = log_lower + (log_upper - log_lower) * fraction
-    candidates = np.exp(log_candidates)
-    candidates[..., 0], candidates[..., -1] = lower, upper  # the ends exactly, not via exp(log)
-    args = (gm[..., None], periapsis_radius[..., None], target_radius[..., None])
-    cost = _three_burn_total(*args, candidates)
-    best = np.argmin(np.where(np.isnan(cost), np.inf, cost), axis=-1)[..., None]
+    return _scan_and_refine(
+        lambda radius, index: _three_burn_total(gm[index], periapsis_radius[index], target_radius[index], radius),
+        lower, upper, np.log, np.exp,
+    )
+
+
+def _scan_and_refine(cost, lower, upper, forward, inverse):
+    """
+    Minimise ``cost(x, index)`` over ``x`` in ``[lower, upper]`` (arrays of any shape).
+
+    A scan of ``_SCAN_POINTS`` candidates evenly spaced in ``u = forward(x)``, then golden-section
+    search ([3]_) in ``u`` between the best candidate's neighbours; the better of the scan's
+    best and the refined point wins, so an optimum at an end comes back exactly. ``index`` is a
+    tuple of broadcastable index arrays selecting the points ``x`` belongs to (the cost's other
+    inputs are indexed with it). NaN where the bound or every candidate's cost is NaN.
+    """
+    shape = lower.shape
+    grid = np.indices(shape, sparse=True)
+    low_u, high_u = forward(lower)[..., None], forward(upper)[..., None]
+    u = low_u + (high_u - low_u) * np.linspace(0.0, 1.0, _SCAN_POINTS)
+    candidates = inverse(u)
+    candidates[..., 0], candidates[..., -1] = lower, upper  # the ends exactly, not via inverse(forward)
+    cost_scan = cost(candidates, tuple(g[..., None] for g in grid))
+    best = np.argmin(np.where(np.isnan(cost_scan), np.inf, cost_scan), axis=-1)[..., None]
     scan_best = np.take_along_axis(candidates, best, axis=-1)[..., 0]
-    scan_cost = np.take_along_axis(cost, best, axis=-1)[..., 0]
-    left = np.take_along_axis(log_candidates, np.maximum(best - 1, 0), axis=-1)[..., 0]
-    right = np.take_along_axis(log_candidates, np.minimum(best + 1, _SCAN_POINTS - 1), axis=-1)[..., 0]
-    args = args[0][..., 0], args[1][..., 0], args[2][..., 0]
+    scan_cost = np.take_along_axis(cost_scan, best, axis=-1)[..., 0]
+    left = np.take_along_axis(u, np.maximum(best - 1, 0), axis=-1)[..., 0]
+    right = np.take_along_axis(u, np.minimum(best + 1, _SCAN_POINTS - 1), axis=-1)[..., 0]
     ratio = (np.sqrt(5.0) - 1.0) / 2.0
     inner_left = right - ratio * (right - left)
     inner_right = left + ratio * (right - left)
-    cost_left = _three_burn_total(*args, np.exp(inner_left))
-    cost_right = _three_burn_total(*args, np.exp(inner_right))
+    cost_left = cost(inverse(inner_left), grid)
+    cost_right = cost(inverse(inner_right), grid)
     for _ in range(_GOLDEN_STEPS):
         keep_left = cost_left <= cost_right
         old_inner_left, old_inner_right = inner_left, inner_right
@@ -262,15 +315,50 @@ def best_intermediate_apoapsis(
         left = np.where(keep_left, left, old_inner_left)
         inner_left = np.where(keep_left, right - ratio * (right - left), old_inner_right)
         inner_right = np.where(keep_left, old_inner_left, left + ratio * (right - left))
-        moved_cost = _three_burn_total(*args, np.exp(np.where(keep_left, inner_left, inner_right)))
+        moved_cost = cost(inverse(np.where(keep_left, inner_left, inner_right)), grid)
         cost_left, cost_right = (
             np.where(keep_left, moved_cost, cost_right),
             np.where(keep_left, cost_left, moved_cost),
         )
-    refined = np.exp(0.5 * (left + right))
-    refined_cost = _three_burn_total(*args, refined)
+    refined = inverse(0.5 * (left + right))
+    refined_cost = cost(refined, grid)
     chosen = np.where(refined_cost < scan_cost, refined, scan_best)
     return np.where(np.isnan(upper) | np.isnan(scan_cost), np.nan, chosen)
+
+
+def best_plane_change_split(
+    v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike,
+    plane_change: ArrayLike,
+) -> np.ndarray:
+    r"""
+    Part of the plane change that ``two_burn`` should make with its first burn.
+
+    Parameters
+    ----------
+    v_inf : numeric
+        Arrival speed. [m/s]
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    periapsis_radius, target_radius : numeric
+        Approach periapsis and target radii. [m]
+    plane_change : numeric
+        Total plane change. [rad]
+
+    Returns
+    -------
+    first_share : numeric
+        The share in :math:`[0, \Delta i]` minimising the total of :func:`two_burn_capture`
+        (scan and golden-section search, as for the apoapsis); 0 without a plane change. [rad]
+    """
+    arrays = np.broadcast_arrays(*(np.asarray(x, dtype=float)
+                                   for x in (v_inf, gm, periapsis_radius, target_radius, plane_change)))
+    v_inf, gm, periapsis_radius, target_radius, plane_change = arrays
+
+    def cost(share, index):
+        return sum(two_burn_capture(v_inf[index], gm[index], periapsis_radius[index], target_radius[index],
+                                    plane_change[index], share).burns)
+
+    return _scan_and_refine(cost, np.zeros_like(plane_change), plane_change, lambda x: x, lambda u: u)
 
 
 def time_limited_apoapsis(

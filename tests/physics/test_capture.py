@@ -8,6 +8,8 @@ from scipy.optimize import brentq
 
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
+    best_plane_change_split,
+    combined_burn,
     direct_capture,
     equal_cost_v_inf,
     three_burn_capture,
@@ -155,3 +157,40 @@ def test_propellant_mass_rocket_equation_limits():
     assert propellant_mass(320.0 * 9.80665, 320.0, 1000.0) == pytest.approx(1000.0 * (1 - np.exp(-1)), rel=1e-15)
     assert propellant_mass(0.0, 320.0, 1000.0) == 0.0
     assert np.isnan(propellant_mass(100.0, 0.0, 1000.0))
+
+
+def test_combined_burn_is_the_vector_difference():
+    # Independent: the two velocity vectors built explicitly, angle theta apart (numpy norm).
+    rng = np.random.default_rng(7)
+    before, after = rng.uniform(100.0, 9000.0, 200), rng.uniform(100.0, 9000.0, 200)
+    angle = rng.uniform(0.0, np.pi, 200)
+    difference = np.hypot(after * np.cos(angle) - before, after * np.sin(angle))
+    np.testing.assert_allclose(combined_burn(before, after, angle), difference, rtol=1e-12)
+
+
+def test_pure_plane_change_of_a_circular_orbit():
+    # Curtis, Ch. 6, plane change at constant speed (from memory): dv = 2 v sin(delta / 2).
+    v = 3000.0
+    assert combined_burn(v, v, np.radians(30.0)) == pytest.approx(2 * v * np.sin(np.radians(15.0)), rel=1e-14)
+
+
+@pytest.mark.parametrize("degrees", [2.0, 10.0, 30.0, 60.0])
+@pytest.mark.parametrize("v_inf", [800.0, 3000.0, 7000.0])
+def test_best_plane_change_split_no_better_on_fine_scan(degrees, v_inf):
+    # Independent: brute force over 20,001 splits of the plane change between the two burns.
+    r_p, r_t = R_MARS + 250e3, R_MARS + 5000e3
+    plane = np.radians(degrees)
+    share = float(best_plane_change_split(v_inf, MU_MARS, r_p, r_t, plane))
+    assert 0.0 <= share <= plane
+    scan = np.linspace(0.0, plane, 20001)
+    totals = sum(two_burn_capture(v_inf, MU_MARS, r_p, r_t, plane, scan).burns)
+    best = float(sum(two_burn_capture(v_inf, MU_MARS, r_p, r_t, plane, share).burns))
+    assert best <= totals.min() + 1e-9  # float rounding of a sum of km/s terms
+
+
+def test_plane_change_is_cheapest_at_a_high_apoapsis():
+    # Curtis, Ch. 6 (common practice): turning the plane costs least where the speed is least.
+    r_p, r_t, plane = R_MARS + 250e3, R_MARS + 400e3, np.radians(20.0)
+    extra = [float(sum(three_burn_capture(2000.0, MU_MARS, r_p, r_t, r_a, plane).burns)
+                   - sum(three_burn_capture(2000.0, MU_MARS, r_p, r_t, r_a).burns)) for r_a in (1e7, 1e8)]
+    assert 0 < extra[1] < extra[0]
