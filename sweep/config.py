@@ -78,8 +78,11 @@ class Grid(_Model):
     # T / (m0 g0) with g0 = 9.80665 m s-2. Without it the sweep is impulsive only.
     thrust: list[float] | AxisRange | None = None  # N
     thrust_to_weight: list[float] | AxisRange | None = None  # 1
+    # Optional impulsive axis: the plane change the capture must also make. Without it, coplanar.
+    plane_change: list[float] | AxisRange | None = None  # degrees
 
-    @field_validator("v_inf", "target_altitude", "periapsis_altitude", "thrust", "thrust_to_weight", mode="before")
+    @field_validator("v_inf", "target_altitude", "periapsis_altitude", "thrust", "thrust_to_weight", "plane_change",
+                     mode="before")
     @classmethod
     def _axis_shape(cls, value: Any) -> Any:
         if isinstance(value, list):
@@ -164,6 +167,7 @@ class SweepConfig:
     crossover_range: tuple[float, float]  # km/s
     thrust: np.ndarray | None  # N, the finite-burn axis; None for an impulsive-only sweep
     thrust_given_as: str  # "thrust" or "thrust_to_weight": how the config stated the axis
+    plane_change: np.ndarray | None  # degrees, the plane-change axis; None for coplanar sweeps
     steering: str  # finite-burn steering law
     text: str  # the TOML exactly as read
     path: str  # where it was read from
@@ -286,6 +290,17 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
     _check_minimum(target, 0.0, "grid.target_altitude", path, above_surface)
     _check_minimum(periapsis, 0.0, "grid.periapsis_altitude", path, above_surface)
     thrust, given_as = _thrust_axis(grid, model.spacecraft.arrival_mass, path)
+    plane_change = None
+    if grid.plane_change is not None:
+        plane_change = _axis_values(grid.plane_change, "grid.plane_change", path)
+        if plane_change.min() < 0 or plane_change.max() >= 180:
+            bad = plane_change.min() if plane_change.min() < 0 else plane_change.max()
+            raise ConfigError(f"{path}: grid.plane_change: angles must be in [0, 180) degrees (got {float(bad)!r})")
+        if thrust is not None:
+            raise ConfigError(
+                f"{path}: grid.plane_change: the finite-burn model is planar, so plane_change cannot be swept "
+                f"together with grid.{given_as}; run them as two configs"
+            )
     if model.crossover.v_inf_min >= model.crossover.v_inf_max:
         raise ConfigError(
             f"{path}: crossover: v_inf_min must be below v_inf_max "
@@ -308,6 +323,7 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         crossover_range=(model.crossover.v_inf_min, model.crossover.v_inf_max),
         thrust=thrust,
         thrust_given_as=given_as,
+        plane_change=plane_change,
         steering=model.finite_burn.steering,
         text=text,
         path=path,

@@ -193,6 +193,24 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         ))
     for name, (values, attrs) in body_vars.items():
         data_vars[name] = (("body",), values, attrs)
+    if arrays.plane is not None:
+        dims = (*DIMENSIONS, "plane_change")
+        coords["plane_change"] = ("plane_change", config.plane_change, _attrs(
+            "degree", "plane change made during the capture (angle between arrival and target orbit planes)"))
+        turn = ("direct: with its one burn; two_burn: split between its burns as cheapest (scan and golden "
+                "section); three_burn: with the apoapsis burn; combined burns by the law of cosines (Curtis 2014, "
+                "Ch. 6); feasibility as without a plane change")
+        data_vars.update({
+            "plane_change_delta_v": (("strategy", *dims), arrays.plane.delta_v, _attrs(
+                "m s-1", "total delta-v including the plane change", comment=turn, references=_VIS_VIVA,
+                ancillary_variables="status")),
+            "two_burn_first_plane_change": (dims, arrays.plane.two_burn_first_share, _attrs(
+                "degree", "part of the plane change two_burn makes with its first burn (the rest with the second)")),
+            "plane_change_best_strategy": (dims, arrays.plane.best_strategy,
+                                           _best_attrs(names, " including the plane change")),
+            "plane_change_saving_over_direct": (dims, arrays.plane.saving_over_direct, _attrs(
+                "m s-1", "delta-v of direct minus that of the best strategy, including the plane change")),
+        })
     if arrays.finite is not None:
         finite_coords, finite_vars = _finite_variables(config, arrays.finite, names)
         coords.update(finite_coords)

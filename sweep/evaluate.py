@@ -21,12 +21,16 @@ from sweep.evaluate_finite import FiniteArrays, evaluate_finite, finite_layout
 from sweep.grid import Chunk, chunks
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
+    best_plane_change_split,
+    direct_capture,
     equal_cost_v_inf,
+    three_burn_capture,
     time_limited_apoapsis,
+    two_burn_capture,
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, Geometry, pick_best
+from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
 
 __all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
 
@@ -65,6 +69,17 @@ class SweepArrays:
     sphere_of_influence: np.ndarray
     hill_radius: np.ndarray
     finite: FiniteArrays | None = None  # with a thrust axis only
+    plane: PlaneChangeArrays | None = None  # with a plane_change axis only
+
+
+@dataclass
+class PlaneChangeArrays:
+    """Impulsive results with a plane change, plane_change axis last (degrees in the cube)."""
+
+    delta_v: np.ndarray  # m/s (strategy, body, v_inf, target, periapsis, plane_change)
+    two_burn_first_share: np.ndarray  # degrees turned with two_burn's first burn (body, ..., plane_change)
+    best_strategy: np.ndarray  # (body, v_inf, target, periapsis, plane_change)
+    saving_over_direct: np.ndarray  # m/s
 
 
 def _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
@@ -233,4 +248,38 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
         pass
     if config.thrust is not None:
         out.finite = evaluate_finite(config, plans, workers, progress)
+    if config.plane_change is not None:
+        out.plane = _evaluate_plane_change(config, plans, out)
     return out
+
+
+def _evaluate_plane_change(config: SweepConfig, plans, out: SweepArrays) -> PlaneChangeArrays:
+    """
+    Every strategy with a plane change, per body: ``direct`` turns with its one burn, ``two_burn``
+    splits the turn between its burns as :func:`best_plane_change_split` finds cheapest,
+    ``three_burn`` turns with the apoapsis burn (at the apoapsis of the coplanar plan: the
+    coplanar total already falls with the apoapsis, and the turn is cheaper the higher it is).
+    Feasibility is the coplanar one.
+    """
+    angles = np.radians(config.plane_change)[None, None, None, :]
+    nbody, nspeed, ntarget, nperiapsis = config.shape
+    shape = (nbody, nspeed, ntarget, nperiapsis, angles.size)
+    delta_v = np.empty((len(STRATEGIES), *shape))
+    share = np.empty(shape)
+    speed = (config.v_inf * _KM)[:, None, None, None]
+    for b, plan in enumerate(plans):
+        g = plan.geometry
+        r_p, r_t = g.periapsis_radius[..., None], g.target_radius[..., None]
+        r_a = np.asarray(g.apoapsis_radius)[..., None]
+        split = best_plane_change_split(speed, g.gm, r_p, r_t, angles)
+        with_turn = {
+            "direct": direct_capture(speed, g.gm, r_t, angles),
+            "two_burn": two_burn_capture(speed, g.gm, r_p, r_t, angles, split),
+            "three_burn": three_burn_capture(speed, g.gm, r_p, r_t, r_a, angles),
+        }
+        for index, strategy in enumerate(STRATEGIES):
+            total = np.broadcast_to(sum(with_turn[strategy.name].burns), shape[1:])
+            delta_v[index, b] = np.where((plan.status[index] == 0)[None, :, :, None], total, np.nan)
+        share[b] = np.where((plan.status[TWO_BURN] == 0)[None, :, :, None], np.degrees(split), np.nan)
+    best, saving, _ = pick_best(delta_v, delta_v, DIRECT)
+    return PlaneChangeArrays(delta_v, share, best, saving)

@@ -15,6 +15,7 @@ __all__ = [
     "DIRECT",
     "NO_STRATEGY",
     "THREE_BURN",
+    "TWO_BURN",
     "STATUSES",
     "STRATEGIES",
     "Geometry",
@@ -96,6 +97,7 @@ def strategy_names() -> list[str]:
 
 
 DIRECT = strategy_names().index("direct")  # the reference every saving and crossover is measured against
+TWO_BURN = strategy_names().index("two_burn")
 THREE_BURN = strategy_names().index("three_burn")
 CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # crossover_v_inf order
 

@@ -89,7 +89,37 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     }
     if "finite_delta_v" in dataset:
         tables.update(_finite_tables(dataset))
+    if "plane_change_delta_v" in dataset:
+        tables["plane_change"] = _plane_change_table(dataset)
     return tables
+
+
+def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
+    """Per body, target and plane change: share won, median cost of the turn, median two_burn split."""
+    bodies, names = _labels(dataset)
+    totals = dataset["plane_change_delta_v"].values  # (S, B, V, T, P, I)
+    best = dataset["plane_change_best_strategy"].values  # (B, V, T, P, I)
+    coplanar = np.fmin.reduce(dataset["delta_v"].values, axis=0)  # (B, V, T, P): least coplanar cost
+    with_turn = np.fmin.reduce(totals, axis=0)
+    share = dataset["two_burn_first_plane_change"].values
+    rows = []
+    for b, body in enumerate(bodies):
+        for t, target in enumerate(dataset["target_altitude"].values):
+            for i, angle in enumerate(dataset["plane_change"].values):
+                block = best[b, :, t, :, i]
+                feasible = int((block >= 0).sum())
+                cost = (with_turn[b, :, t, :, i] - coplanar[b, :, t, :])
+                cost = cost[np.isfinite(cost)]
+                split = share[b, :, t, :, i]
+                split = split[np.isfinite(split)]
+                row = [body, target, angle]
+                row += [(block == s).sum() / feasible if feasible else np.nan for s in range(len(names))]
+                row += [float(np.median(cost)) if cost.size else np.nan,
+                        float(np.median(split)) if split.size else np.nan]
+                rows.append(row)
+    return pd.DataFrame(rows, columns=["body", "target_altitude_km", "plane_change_deg",
+                                       *[f"share_won_{n}" for n in names],
+                                       "median_cost_of_turn_m_s", "median_two_burn_first_share_deg"])
 
 
 def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
@@ -248,6 +278,22 @@ def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int
     return lines
 
 
+def _plane_change_section(table: pd.DataFrame, body: str, target: float, names: list[str]) -> list[str]:
+    here = table[(table.body == body) & (table.target_altitude_km == target)]
+    lines = ["With a plane change (direct turns with its burn, two_burn splits the turn, three_burn turns at "
+             "apoapsis):", "",
+             "| plane change | points won: " + " / ".join(names) + " | median cost of the turn | "
+             "median two_burn turn at its first burn |", "|---:|---|---:|---:|"]
+    for row in here.itertuples(index=False):
+        won = " / ".join("-" if not np.isfinite(v) else f"{v:.0%}"
+                         for v in (getattr(row, f"share_won_{n}") for n in names))
+        cost = "-" if not np.isfinite(row.median_cost_of_turn_m_s) else f"{row.median_cost_of_turn_m_s:.0f} m/s"
+        split = "-" if not np.isfinite(row.median_two_burn_first_share_deg) else \
+            f"{row.median_two_burn_first_share_deg:.2f} deg"
+        lines.append(f"| {row.plane_change_deg:g} deg | {won} | {cost} | {split} |")
+    return lines + ["", "Cost of the turn: least delta-v with the plane change minus least delta-v without it.", ""]
+
+
 def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None,
                    figures: list[tuple[str, str, str]] | None = None) -> str:
     """
@@ -308,6 +354,8 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
             lines.append("")
             if "finite_delta_v" in dataset:
                 lines += _finite_section(dataset, tables, b, t)
+            if "plane_change" in tables:
+                lines += _plane_change_section(tables["plane_change"], body, target, names)
         lines += _status_lines(dataset, b, names) + [""]
     lines += [
         "## How to read this",
