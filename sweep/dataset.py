@@ -193,6 +193,13 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         ))
     for name, (values, attrs) in body_vars.items():
         data_vars[name] = (("body",), values, attrs)
+    free = ("the circular orbit whose altitude the mission may choose: r = 2 mu / v_inf^2, delta-v = "
+            "v_inf / sqrt(2) (Curtis 2014, Ch. 8, optimal periapsis for e = 0); NaN where that altitude is "
+            "below the lowest safe periapsis or beyond the apoapsis bound")
+    data_vars["free_periapsis_altitude"] = (("body", "v_inf"), arrays.free_periapsis_altitude, _attrs(
+        "km", "altitude of the circular orbit cheapest to capture into", comment=free))
+    data_vars["free_periapsis_delta_v"] = (("body", "v_inf"), arrays.free_periapsis_delta_v, _attrs(
+        "m s-1", "single-burn delta-v into the circular orbit cheapest to capture into", comment=free))
     if arrays.plane is not None:
         dims = (*DIMENSIONS, "plane_change")
         coords["plane_change"] = ("plane_change", config.plane_change, _attrs(

@@ -24,6 +24,7 @@ from sweep.physics.capture import (
     best_plane_change_split,
     direct_capture,
     equal_cost_v_inf,
+    free_periapsis_capture,
     three_burn_capture,
     time_limited_apoapsis,
     two_burn_capture,
@@ -68,6 +69,8 @@ class SweepArrays:
     apoapsis_bound: np.ndarray
     sphere_of_influence: np.ndarray
     hill_radius: np.ndarray
+    free_periapsis_altitude: np.ndarray
+    free_periapsis_delta_v: np.ndarray
     finite: FiniteArrays | None = None  # with a thrust axis only
     plane: PlaneChangeArrays | None = None  # with a plane_change axis only
 
@@ -164,6 +167,8 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
         "apoapsis_bound": ((nbody,), np.float64),
         "sphere_of_influence": ((nbody,), np.float64),
         "hill_radius": ((nbody,), np.float64),
+        "free_periapsis_altitude": ((nbody, shape[1]), np.float64),
+        "free_periapsis_delta_v": ((nbody, shape[1]), np.float64),
     }
 
 
@@ -240,6 +245,10 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
         out.apoapsis_bound[index] = plan.apoapsis_bound / _KM
         out.sphere_of_influence[index] = body.sphere_of_influence / _KM
         out.hill_radius[index] = body.hill_radius / _KM
+        radius, burn = free_periapsis_capture(config.v_inf * _KM, body.gm)
+        usable = (radius >= body.radius + body.safe_periapsis_altitude) & (radius <= plan.apoapsis_bound)
+        out.free_periapsis_altitude[index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
+        out.free_periapsis_delta_v[index] = np.where(usable, burn, np.nan)
     work = chunks(config.shape, points_per_chunk)
     logger.info("evaluating %d points in %d chunks on %d threads", int(np.prod(config.shape)), len(work), workers)
     tasks = (delayed(_run_chunk)(chunk, plans[chunk.body], config.v_inf, config, out) for chunk in work)

@@ -129,3 +129,19 @@ def test_crossovers_equal_escape_speed_at_target_and_at_apoapsis(small_cube):
     assert finite.sum() >= 3
     # r_a comes back through a km altitude added to a km radius: 1e-9 covers that rounding
     np.testing.assert_allclose(three[finite], np.sqrt(2 * gm / r_a)[finite] / 1e3, rtol=1e-9)
+
+
+def test_free_periapsis_orbit_is_the_cheapest_circle(small_cube):
+    # Curtis, Ch. 8 (optimal periapsis, e = 0): the circle at r = 2 mu / v_inf^2 costs v_inf / sqrt(2);
+    # checked against the cube's own direct capture at neighbouring radii (vis-viva kernels).
+    config, cube = small_cube
+    mars = config.bodies[0]
+    altitude = cube.free_periapsis_altitude.isel(body=0).values
+    burn = cube.free_periapsis_delta_v.isel(body=0).values
+    usable = np.isfinite(altitude)
+    assert usable.sum() >= 3
+    speeds = config.v_inf[usable] * 1e3
+    np.testing.assert_allclose(burn[usable], speeds / np.sqrt(2.0), rtol=1e-14)
+    radius = mars.radius + altitude[usable] * 1e3
+    for factor in (0.8, 1.25):
+        assert (direct_capture(speeds, mars.gm, factor * radius).burns[0] > burn[usable]).all()

@@ -40,6 +40,7 @@ from sweep.physics.conics import (
 
 __all__ = [
     "Maneuver",
+    "free_periapsis_capture",
     "best_plane_change_split",
     "combined_burn",
     "best_intermediate_apoapsis",
@@ -84,6 +85,41 @@ def combined_burn(speed_before: ArrayLike, speed_after: ArrayLike, angle: ArrayL
     # exactly |v1 - v2| without a turn, so coplanar results do not move.
     turned = np.sqrt((after - before) ** 2 + 4.0 * before * after * np.sin(0.5 * np.asarray(angle)) ** 2)
     return np.where(np.equal(angle, 0.0), np.abs(after - before), turned)
+
+
+def free_periapsis_capture(v_inf: ArrayLike, gm: ArrayLike, eccentricity: ArrayLike = 0.0):
+    r"""
+    The capture burn into an orbit of given eccentricity when the periapsis may be chosen.
+
+    Parameters
+    ----------
+    v_inf : numeric
+        Arrival speed. [m/s]
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    eccentricity : numeric
+        Eccentricity of the orbit to capture into, 0 <= e < 1. [1]
+
+    Returns
+    -------
+    periapsis_radius, delta_v : numeric
+        The periapsis radius that minimises the single capture burn,
+        :math:`r_p = 2\mu(1 - e) / (v_\infty^2 (1 + e))`, and that burn,
+        :math:`\Delta v = v_\infty \sqrt{(1 - e)/2}` ([1]_ Ch. 8; Eqs. 8.67 and 8.70 in the 2nd
+        edition). NaN radius where the arrival speed is 0. [m], [m/s]
+
+    Examples
+    --------
+    >>> radius, burn = free_periapsis_capture(2648.0, 4.283e13, 0.0)
+    >>> round(float(burn), 1)
+    1872.4
+    """
+    v_inf = np.asarray(v_inf, dtype=float)
+    eccentricity = np.asarray(eccentricity, dtype=float)
+    with np.errstate(divide="ignore"):
+        radius = np.where(v_inf > 0, 2.0 * np.asarray(gm) * (1.0 - eccentricity)
+                          / (np.where(v_inf > 0, v_inf, 1.0) ** 2 * (1.0 + eccentricity)), np.nan)
+    return radius, v_inf * np.sqrt(0.5 * (1.0 - eccentricity))
 
 
 def _coast(gm, radius, other_apsis):

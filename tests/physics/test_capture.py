@@ -12,6 +12,7 @@ from sweep.physics.capture import (
     combined_burn,
     direct_capture,
     equal_cost_v_inf,
+    free_periapsis_capture,
     three_burn_capture,
     time_limited_apoapsis,
     two_burn_capture,
@@ -194,3 +195,22 @@ def test_plane_change_is_cheapest_at_a_high_apoapsis():
     extra = [float(sum(three_burn_capture(2000.0, MU_MARS, r_p, r_t, r_a, plane).burns)
                    - sum(three_burn_capture(2000.0, MU_MARS, r_p, r_t, r_a).burns)) for r_a in (1e7, 1e8)]
     assert 0 < extra[1] < extra[0]
+
+
+def test_free_periapsis_capture_curtis_example_8_5():
+    # Curtis, Orbital Mechanics for Engineering Students, Example 8.5 (from memory): after a
+    # Hohmann transfer from Earth, v_inf = 2.648 km/s at Mars (mu = 42,830 km3/s2); capture into
+    # a 7-hour orbit with the periapsis chosen for the least delta-v. Printed answers (from
+    # memory): e = 0.3833, r_p = 5448 km, delta-v = 1.470 km/s.
+    mu, v_inf, period = 42830e9, 2648.0, 7 * 3600.0
+    a = (period * np.sqrt(mu) / (2 * np.pi)) ** (2 / 3)  # Kepler's third law
+    e = 2 * mu / (a * v_inf**2) - 1  # the optimal periapsis lies where a = 2 mu / (v_inf^2 (1 + e))
+    radius, burn = free_periapsis_capture(v_inf, mu, e)
+    assert e == pytest.approx(0.3833, abs=2e-4)  # printed to 4 digits
+    assert radius / 1e3 == pytest.approx(5448.0, abs=2.0)
+    assert burn == pytest.approx(1470.0, abs=1.0)
+    # and it is the least single capture burn into that eccentricity: nearby periapses cost more
+    for factor in (0.9, 1.1):
+        r_p = factor * radius
+        other = np.sqrt(v_inf**2 + 2 * mu / r_p) - np.sqrt(mu * (1 + e) / r_p)  # vis-viva at periapsis
+        assert other > burn
