@@ -13,7 +13,10 @@ Per body (``<body>`` is the cube's lower-case body name):
 - ``saving_<body>.png``: the saving over direct against arrival speed, one line per target;
 - with a thrust axis, ``finite_winner_<body>.png`` (the winner map with finite burns, one panel
   per thrust level beside the impulsive one) and ``finite_crossover_<body>.png`` (the finite-burn
-  crossover speed against thrust-to-weight, the impulsive one as reference).
+  crossover speed against thrust-to-weight, the impulsive one as reference);
+- with a plane-change axis, ``plane_change_<body>.png``: the winner map including the plane change,
+  one panel per plane-change angle, at the lowest periapsis where a low-periapsis strategy is
+  feasible, with contours of the saving over direct.
 """
 
 from __future__ import annotations
@@ -41,6 +44,7 @@ _MAX_PERIAPSIS_PANELS = 6  # winner map: small multiples, one per periapsis alti
 _MAX_SAVING_PANELS = 3  # saving curves: a few periapses
 _MAX_THRUST_PANELS = 4  # finite winner map: one column per thrust level (plus the impulsive one)
 _MAX_FINITE_ROWS = 3  # finite winner map: one row per periapsis altitude
+_MAX_PLANE_PANELS = 4  # plane-change winner map: one panel per plane-change angle
 
 # Okabe and Ito (2008), "Color Universal Design": distinguishable with the common colour-vision deficiencies.
 _OKABE_ITO = {
@@ -74,14 +78,17 @@ def _labels(dataset: xr.Dataset) -> tuple[list[str], list[str]]:
 def _figures(dataset: xr.Dataset) -> list[tuple[str, int, str, str]]:
     """(kind, body index, file name, title) of every figure, in order."""
     bodies, _ = _labels(dataset)
-    kinds = ["winner", "saving"] + (["finite_winner", "finite_crossover"] if "finite_best_strategy" in dataset else [])
+    kinds = (["winner", "saving"]
+             + (["finite_winner", "finite_crossover"] if "finite_best_strategy" in dataset else [])
+             + (["plane_change"] if "plane_change_best_strategy" in dataset else []))
     return [(kind, b, f"{kind}_{_safe(body)}.png", _title(body, kind))
             for b, body in enumerate(bodies) for kind in kinds]
 
 
 _TITLES = {"winner": "cheapest capture strategy", "saving": "saving over direct capture",
            "finite_winner": "cheapest capture strategy with finite burns",
-           "finite_crossover": "where the low-periapsis capture starts to pay, against thrust-to-weight"}
+           "finite_crossover": "where the low-periapsis capture starts to pay, against thrust-to-weight",
+           "plane_change": "cheapest capture strategy with a plane change"}
 
 
 def _title(body: str, kind: str) -> str:
@@ -145,6 +152,10 @@ def _edges(values: np.ndarray, log: bool) -> np.ndarray:
         return np.exp(_edges(np.log(values), log=False))
     middle = (values[1:] + values[:-1]) / 2
     return np.concatenate([[2 * values[0] - middle[0]], middle, [2 * values[-1] - middle[-1]]])
+
+
+def _degrees(values) -> str:
+    return ", ".join(f"{v:g}°" for v in values)
 
 
 def _km(value: float) -> str:
@@ -403,6 +414,51 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     return figure
 
 
+def _plane_change_figure(dataset: xr.Dataset, b: int) -> Figure:
+    bodies, names = _labels(dataset)
+    periapses = dataset["periapsis_altitude"].values
+    targets = dataset["target_altitude"].values
+    angles = dataset["plane_change"].values
+    best = dataset["plane_change_best_strategy"].values[b]  # (V, T, P, A)
+    saving = dataset["plane_change_saving_over_direct"].values[b]
+    candidates = _challenger_periapses(dataset["status"].values[:, b], names)
+    challengers = " or ".join(n for n in names if n != "direct")
+    shown = _evenly(list(range(angles.size)), _MAX_PLANE_PANELS)
+    nothing = _nothing_feasible(dataset, b)
+    p = candidates[0] if candidates else 0
+    if nothing:  # one grey panel says it; more would repeat it
+        shown = shown[:1]
+        which = f"{nothing}; plane change {_degrees(angles[shown])}, periapsis {_km(periapses[p])} shown"
+    else:
+        if len(shown) == angles.size:
+            which = f"one panel per plane-change angle (all {angles.size}: {_degrees(angles)})"
+        else:
+            which = (f"{len(shown)} of {angles.size} plane-change angles, evenly spaced along the grid: "
+                     f"{_degrees(angles[shown])}")
+        which += (f"; periapsis {_km(periapses[p])}, the lowest where {challengers} is feasible" if candidates
+                  else f"; {challengers} feasible at no periapsis, periapsis {_km(periapses[p])} shown")
+    which += "; feasibility as without a plane change"
+    panels = saving[:, :, p][..., shown]
+    finite_saving = panels[np.isfinite(panels)]
+    levels = _nice_levels(float(finite_saving.max()) if finite_saving.size else 0.0)
+    if levels.size and 2 <= targets.size < 10:
+        which += f"; contours interpolate between the {targets.size} target altitudes of the grid"
+    columns = len(shown) if len(shown) <= 3 else 2
+    rows = -(-len(shown) // columns)
+    title = _title(bodies[b], "plane_change")
+    # one panel alone would clip the long title: bold 13 pt is about 0.115 inch a character
+    width = max(3.7 * columns + 0.9, 0.115 * len(title) + 0.6)
+    figure = _new_figure(width, 2.75 * rows + 1.1, title, f"{which}; {CAPTION}")
+    geometry = _MapAxes(dataset["v_inf"].values, targets, names)
+    contoured = False
+    for ax, a in zip(_panel_grid(figure, len(shown), columns, _TARGET_LABEL), shown, strict=True):
+        geometry.draw(ax, best[:, :, p, a])
+        contoured |= geometry.contours(ax, saving[:, :, p, a], levels)
+        ax.set_title(f"plane change {angles[a]:g}°", fontsize=9.5)
+    geometry.legend(figure, [], contours=contoured)
+    return figure
+
+
 # ---- curves ------------------------------------------------------------------------------------
 
 def _target_colours(count: int) -> list:
@@ -554,14 +610,16 @@ def _finite_crossover_figure(dataset: xr.Dataset, b: int) -> Figure:
 # ---- writing -----------------------------------------------------------------------------------
 
 _DRAW = {"winner": _winner_figure, "saving": _saving_figure,
-         "finite_winner": _finite_winner_figure, "finite_crossover": _finite_crossover_figure}
+         "finite_winner": _finite_winner_figure, "finite_crossover": _finite_crossover_figure,
+         "plane_change": _plane_change_figure}
 
 
 def draw_figure(dataset: xr.Dataset, kind: str, body: str) -> Figure:
     """
     One figure as a :class:`matplotlib.figure.Figure` on the Agg canvas, e.g.
     ``draw_figure(cube, "winner", "mars")``; ``kind`` is one of ``winner``, ``saving``,
-    ``finite_winner``, ``finite_crossover`` (the last two need a thrust axis).
+    ``finite_winner``, ``finite_crossover`` (these two need a thrust axis) and ``plane_change``
+    (needs a plane-change axis).
     """
     bodies, _ = _labels(dataset)
     kinds = {kind for kind, *_ in _figures(dataset)}

@@ -206,3 +206,91 @@ def test_plot_errors_exit_2_with_one_line(config_file, tmp_path, capsys):
     blocker.write_text("not a folder")
     assert main(["plot", str(out / "small-test.nc"), "--out", str(blocker / "sub")]) == 2
     assert "cannot write output" in capsys.readouterr().err
+
+
+# ---- plane change ------------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def plane_figures(tmp_path_factory):
+    from tests.test_plane_change import PLANE
+
+    cube = run(parse_config(PLANE, "plane.toml"), workers=1)
+    folder = tmp_path_factory.mktemp("plane_figures")
+    return cube, folder, _draw_strictly(cube, folder)
+
+
+def test_plane_change_cube_gets_the_plane_change_figure(plane_figures):
+    cube, folder, paths = plane_figures
+    assert paths == [folder / name for _, name, _ in figure_files(cube)]
+    assert {p.name for p in paths} == {f"{kind}_{body}.png" for kind in ("winner", "saving", "plane_change")
+                                       for body in ("mars", "moon", "enceladus")}
+    assert ("mars", "plane_change_mars.png", "Mars: cheapest capture strategy with a plane change") \
+        in figure_files(cube)
+    for body in ("mars", "moon", "enceladus"):
+        path = folder / f"plane_change_{body}.png"
+        assert path.read_bytes()[:8] == PNG_SIGNATURE, path.name
+        image = imread(path)
+        height, width = image.shape[:2]
+        assert 4 * DPI <= width <= 20 * DPI and 3 * DPI <= height <= 14 * DPI, (path.name, width, height)
+        rgb = image[..., :3]  # not blank, by the yardsticks of test_figures_are_pngs_of_a_sensible_size_and_not_blank
+        colours = np.unique((rgb * 255).round().astype(np.uint8).reshape(-1, 3), axis=0)
+        assert len(colours) > 100, (path.name, len(colours))
+        assert rgb.std() > 0.08, (path.name, rgb.std())
+
+
+def test_no_plane_change_figure_without_the_axis(small_figures):
+    cube, folder, paths = small_figures
+    assert "plane_change" not in cube.dims
+    assert not any("plane_change" in name for _, name, _ in figure_files(cube))
+    assert not list(folder.glob("plane_change_*.png"))
+    with pytest.raises(ValueError, match=r"unknown figure kind 'plane_change' for this cube"):
+        draw_figure(cube, "plane_change", "mars")
+
+
+def test_plane_change_figure_panels_captions_and_winners(plane_figures):
+    cube, folder, _ = plane_figures
+    figure = draw_figure(cube, "plane_change", "mars")
+    titles = [ax.get_title() for ax in figure.axes if ax.get_visible() and ax.get_title()]
+    assert titles == ["plane change 0°", "plane change 5°", "plane change 20°"]  # the grid's 3 angles
+    text = " ".join(t.get_text() for t in figure.texts)
+    assert "preliminary patched-conic estimates" in text
+    # Mars: periapsis 20 km is below the safe altitude, so 250 km is the lowest with three_burn feasible
+    assert "periapsis 250 km, the lowest where two_burn or three_burn is feasible" in " ".join(text.split())
+    contours = [c for ax in figure.axes for c in ax.collections if type(c).__name__ == "QuadContourSet"]
+    assert contours  # labelled contours of the saving over direct
+    # The cube's winners at that periapsis are direct and three_burn; the file shows both in their colours.
+    names = list(cube.strategy_name.values)
+    winners = cube.plane_change_best_strategy.isel(body=0).sel(periapsis_altitude=250.0).values
+    assert set(np.unique(winners)) == {names.index("direct"), names.index("three_burn")}
+    image = imread(folder / "plane_change_mars.png")
+    assert _count(image, fill_colour("three_burn", 2)) > 10_000
+    # direct wins one column of one panel (0.5 km/s at 0 deg): measured 10,982 pixels; three_burn 396,757
+    assert _count(image, fill_colour("direct", 0)) > 2_000
+    assert _count(image, fill_colour("two_burn", 1)) < 600  # legend patch only
+
+
+def test_plane_change_figure_draws_the_cube(plane_figures):
+    # Edit the cube's plane-change winners: a figure that recomputed physics would not show the edit.
+    cube, _, _ = plane_figures
+    edited = cube.copy(deep=True)
+    two_burn = list(cube.strategy_name.values).index("two_burn")
+    edited["plane_change_best_strategy"][0] = two_burn
+    assert _count(_pixels(draw_figure(edited, "plane_change", "mars")), fill_colour("two_burn", two_burn)) > 100_000
+    assert _count(_pixels(draw_figure(cube, "plane_change", "mars")), fill_colour("two_burn", two_burn)) < 600
+
+
+def test_plane_change_figure_shows_at_most_four_angles(plane_figures):
+    cube, _, _ = plane_figures
+    wide = cube.isel(plane_change=[0, 0, 1, 1, 2, 2, 2]).assign_coords(
+        plane_change=[0.0, 2.0, 5.0, 8.0, 20.0, 25.0, 30.0])  # relabelled copies: only the axis length matters
+    figure = draw_figure(wide, "plane_change", "moon")
+    titles = [ax.get_title() for ax in figure.axes if ax.get_visible() and ax.get_title()]
+    assert titles == ["plane change 0°", "plane change 5°", "plane change 20°", "plane change 30°"]
+    assert "4 of 7 plane-change angles" in " ".join(" ".join(t.get_text() for t in figure.texts).split())
+
+
+def test_summary_links_the_plane_change_figure(plane_figures):
+    cube, folder, _ = plane_figures
+    text = write_summary(cube, folder)[0].read_text()
+    assert "![Mars: cheapest capture strategy with a plane change](plane_change_mars.png)" in text
+    assert text.count("![") == len(figure_files(cube))
