@@ -118,6 +118,13 @@ class Crossover(_Model):
     v_inf_max: Annotated[float, Field(gt=0)] = 30.0
 
 
+class TargetOrbit(_Model):
+    """An elliptical target: its periapsis altitude is the grid's target_altitude."""
+
+    apoapsis_altitude: Annotated[float, Field(gt=0)] | None = None  # km
+    period: Annotated[float, Field(gt=0)] | None = None  # hours
+
+
 class FiniteBurn(_Model):
     """Finite-burn model options."""
 
@@ -146,6 +153,7 @@ class ConfigFile(_Model):
     three_burn: ThreeBurn = ThreeBurn()
     crossover: Crossover = Crossover()
     finite_burn: FiniteBurn = FiniteBurn()
+    target_orbit: TargetOrbit = TargetOrbit()
     bodies: dict[str, BodyFields] = {}
 
 
@@ -171,6 +179,8 @@ class SweepConfig:
     steering: str  # finite-burn steering law
     text: str  # the TOML exactly as read
     path: str  # where it was read from
+    target_apoapsis_altitude: float | None = None  # km: elliptical target with this apoapsis ...
+    target_period: float | None = None  # s: ... or with this period; neither: circular targets
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -306,7 +316,10 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
             f"{path}: crossover: v_inf_min must be below v_inf_max "
             f"(got {model.crossover.v_inf_min!r} and {model.crossover.v_inf_max!r})"
         )
+    _check_target_orbit(model.target_orbit, bodies, target, path)
     return SweepConfig(
+        target_apoapsis_altitude=model.target_orbit.apoapsis_altitude,
+        target_period=None if model.target_orbit.period is None else model.target_orbit.period * 3600.0,
         name=model.name,
         description=model.description,
         bodies=bodies,
@@ -328,6 +341,26 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         text=text,
         path=path,
     )
+
+
+def _check_target_orbit(orbit: TargetOrbit, bodies, target_altitudes: np.ndarray, path: str) -> None:
+    """An elliptical target needs one of apoapsis or period, and an apoapsis above every periapsis."""
+    if orbit.apoapsis_altitude is not None and orbit.period is not None:
+        raise ConfigError(f"{path}: target_orbit: give apoapsis_altitude or period, not both")
+    if orbit.apoapsis_altitude is not None and orbit.apoapsis_altitude < target_altitudes.max():
+        raise ConfigError(
+            f"{path}: target_orbit.apoapsis_altitude: must be at least every grid.target_altitude (the target's "
+            f"periapsis; largest {float(target_altitudes.max())!r} km), got {orbit.apoapsis_altitude!r}"
+        )
+    if orbit.period is not None:
+        for body in bodies:
+            semi_major_axis = np.cbrt(body.gm * (orbit.period * 3600.0 / (2 * np.pi)) ** 2)
+            periapsis = body.radius + target_altitudes.max() * 1e3
+            if 2 * semi_major_axis < 2 * periapsis:
+                raise ConfigError(
+                    f"{path}: target_orbit.period: {orbit.period!r} h is shorter than a circular orbit at the "
+                    f"largest target periapsis ({float(target_altitudes.max())!r} km) about {body.name!r}"
+                )
 
 
 def _v_inf_axis(axis, bodies: tuple[Body, ...], defined: dict[str, BodyFields], path: str) -> tuple[np.ndarray, str]:

@@ -200,6 +200,12 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         "km", "altitude of the circular orbit cheapest to capture into", comment=free))
     data_vars["free_periapsis_delta_v"] = (("body", "v_inf"), arrays.free_periapsis_delta_v, _attrs(
         "m s-1", "single-burn delta-v into the circular orbit cheapest to capture into", comment=free))
+    if config.target_apoapsis_altitude is not None or config.target_period is not None:
+        how = (f"apoapsis altitude {config.target_apoapsis_altitude} km" if config.target_apoapsis_altitude is not None
+               else f"period {config.target_period / 3600.0:g} h")
+        coords["target_altitude"][2]["long_name"] = "periapsis altitude of the elliptical target orbit"
+        data_vars["target_apoapsis_altitude"] = (("body", "target_altitude"), arrays.target_apoapsis_altitude, _attrs(
+            "km", "apoapsis altitude of the elliptical target orbit", comment=f"target orbits given by {how}"))
     if arrays.plane is not None:
         dims = (*DIMENSIONS, "plane_change")
         coords["plane_change"] = ("plane_change", config.plane_change, _attrs(

@@ -71,6 +71,7 @@ class SweepArrays:
     hill_radius: np.ndarray
     free_periapsis_altitude: np.ndarray
     free_periapsis_delta_v: np.ndarray
+    target_apoapsis_altitude: np.ndarray  # km (body, target); equal to the target altitude for circles
     finite: FiniteArrays | None = None  # with a thrust axis only
     plane: PlaneChangeArrays | None = None  # with a plane_change axis only
 
@@ -104,21 +105,34 @@ def _status_codes(strategy, body, target_altitude, periapsis_altitude, target_ra
     return np.select(conditions, [_CODE[c] for c in codes], default=_CODE["ok"]).astype(np.int8)
 
 
+def target_apoapsis_radius(body, config: SweepConfig, target_radius: np.ndarray) -> np.ndarray | None:
+    """An elliptical target's apoapsis radius per target periapsis (m); None for circular targets."""
+    if config.target_apoapsis_altitude is not None:
+        return np.full_like(target_radius, body.radius + config.target_apoapsis_altitude * _KM)
+    if config.target_period is not None:
+        semi_major_axis = np.cbrt(body.gm * (config.target_period / (2.0 * np.pi)) ** 2)  # Kepler's third law
+        return 2.0 * semi_major_axis - target_radius
+    return None
+
+
 def plan_body(body, config: SweepConfig) -> BodyPlan:
     """Geometry, feasibility, times, chosen apoapsis and crossover speeds for one body."""
     target_altitude = config.target_altitude[:, None] * _KM
     periapsis_altitude = config.periapsis_altitude[None, :] * _KM
     target_radius = body.radius + target_altitude
     periapsis_radius = body.radius + periapsis_altitude
+    target_apoapsis = target_apoapsis_radius(body, config, target_radius)
+    far = target_radius if target_apoapsis is None else target_apoapsis
     bound = config.apoapsis_fraction * min(body.sphere_of_influence, body.hill_radius)
     upper = np.full(np.broadcast_shapes(target_radius.shape, periapsis_radius.shape), bound)
     if config.max_time_to_orbit is not None:
         # NaN where even the smallest apoapsis is too slow: fmin keeps the bound, and the
         # time check below flags the point.
-        limit = time_limited_apoapsis(body.gm, periapsis_radius, target_radius, config.max_time_to_orbit)
+        limit = time_limited_apoapsis(body.gm, periapsis_radius, target_radius, config.max_time_to_orbit,
+                                      target_apoapsis)
         upper = np.fmin(upper, limit)
-    apoapsis = best_intermediate_apoapsis(body.gm, periapsis_radius, target_radius, upper)
-    geometry = Geometry(body.gm, periapsis_radius, target_radius, apoapsis)
+    apoapsis = best_intermediate_apoapsis(body.gm, periapsis_radius, target_radius, upper, target_apoapsis)
+    geometry = Geometry(body.gm, periapsis_radius, target_radius, apoapsis, target_apoapsis)
 
     status, times, constants = [], [], []
     for strategy in STRATEGIES:
@@ -126,7 +140,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
         time = np.broadcast_to(maneuver.time, upper.shape)
         cap = np.inf if config.max_time_to_orbit is None else config.max_time_to_orbit
         exceeded = time > cap
-        code = _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
+        code = _status_codes(strategy, body, target_altitude, periapsis_altitude, far,
                              periapsis_radius, bound, exceeded)
         status.append(code)
         times.append(np.where(code == 0, time, np.nan))
@@ -169,6 +183,7 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
         "hill_radius": ((nbody,), np.float64),
         "free_periapsis_altitude": ((nbody, shape[1]), np.float64),
         "free_periapsis_delta_v": ((nbody, shape[1]), np.float64),
+        "target_apoapsis_altitude": ((nbody, ntarget), np.float64),
     }
 
 
@@ -245,6 +260,7 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
         out.apoapsis_bound[index] = plan.apoapsis_bound / _KM
         out.sphere_of_influence[index] = body.sphere_of_influence / _KM
         out.hill_radius[index] = body.hill_radius / _KM
+        out.target_apoapsis_altitude[index] = (plan.geometry.target_far[:, 0] - body.radius) / _KM
         radius, burn = free_periapsis_capture(config.v_inf * _KM, body.gm)
         usable = (radius >= body.radius + body.safe_periapsis_altitude) & (radius <= plan.apoapsis_bound)
         out.free_periapsis_altitude[index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
@@ -280,11 +296,12 @@ def _evaluate_plane_change(config: SweepConfig, plans, out: SweepArrays) -> Plan
         g = plan.geometry
         r_p, r_t = g.periapsis_radius[..., None], g.target_radius[..., None]
         r_a = np.asarray(g.apoapsis_radius)[..., None]
-        split = best_plane_change_split(speed, g.gm, r_p, r_t, angles)
+        r_ta = None if g.target_apoapsis is None else g.target_apoapsis[..., None]
+        split = best_plane_change_split(speed, g.gm, r_p, r_t, angles, r_ta)
         with_turn = {
-            "direct": direct_capture(speed, g.gm, r_t, angles),
-            "two_burn": two_burn_capture(speed, g.gm, r_p, r_t, angles, split),
-            "three_burn": three_burn_capture(speed, g.gm, r_p, r_t, r_a, angles),
+            "direct": direct_capture(speed, g.gm, r_t, angles, r_ta),
+            "two_burn": two_burn_capture(speed, g.gm, r_p, r_t, angles, split, r_ta),
+            "three_burn": three_burn_capture(speed, g.gm, r_p, r_t, r_a, angles, r_ta),
         }
         for index, strategy in enumerate(STRATEGIES):
             total = np.broadcast_to(sum(with_turn[strategy.name].burns), shape[1:])

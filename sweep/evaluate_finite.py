@@ -95,6 +95,7 @@ class _BodyInputs:
     target_radius: np.ndarray  # (T, 1)
     apoapsis_radius: np.ndarray  # (T, P)
     status: np.ndarray  # (S, T, P)
+    target_apoapsis: np.ndarray | None = None  # (T, 1): an elliptical target's apoapsis
 
 
 def _fly(strategy, gm, radius, soi, geometry: Geometry, speed, thrust, exhaust_speed, mass, steering):
@@ -124,7 +125,8 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
         ok = np.flatnonzero(code == 0)
         t, p = target_index[ok], periapsis_index[ok]
         geometry = Geometry(body.gm, body.periapsis_radius[0, p], body.target_radius[t, 0],
-                            body.apoapsis_radius[t, p])
+                            body.apoapsis_radius[t, p],
+                            None if body.target_apoapsis is None else body.target_apoapsis[t, 0])
         result, maneuver = _fly(strategy, body.gm, body.radius, body.soi, geometry, speed[ok], thrusts[ok],
                                 exhaust_speed, mass, steering)
         flown = result.outcome == 0
@@ -181,6 +183,8 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteAr
             "periapsis": np.array([bodies[k].periapsis_radius[0, q] for k, q in zip(b, p, strict=True)]),
             "target": np.array([bodies[k].target_radius[q, 0] for k, q in zip(b, t, strict=True)]),
             "apoapsis": np.array([bodies[k].apoapsis_radius[u, q] for k, u, q in zip(b, t, p, strict=True)]),
+            "target_apoapsis": np.array([(bodies[k].target_radius if bodies[k].target_apoapsis is None
+                                          else bodies[k].target_apoapsis)[q, 0] for k, q in zip(b, t, strict=True)]),
             "thrust": config.thrust[f],
         }
         groups = [slice(start, start + _BRACKETS_PER_TASK) for start in range(0, b.size, _BRACKETS_PER_TASK)]
@@ -192,7 +196,9 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteAr
 
 def _solve_brackets(brackets, challenger, exhaust_speed, mass, steering) -> np.ndarray:
     """Illinois iterations for one group of brackets (run in a worker)."""
-    geometry = Geometry(brackets["gm"], brackets["periapsis"], brackets["target"], brackets["apoapsis"])
+    # A circular target is passed as an ellipse with equal apsides here: the same orbit.
+    geometry = Geometry(brackets["gm"], brackets["periapsis"], brackets["target"], brackets["apoapsis"],
+                        brackets["target_apoapsis"])
 
     def gap(speed, index):
         sub = Geometry(*(value[index] for value in geometry))
@@ -271,7 +277,8 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     layout = finite_layout(config)
     bodies = [
         _BodyInputs(body.gm, body.radius, body.sphere_of_influence, plan.geometry.periapsis_radius,
-                    plan.geometry.target_radius, np.asarray(plan.geometry.apoapsis_radius), plan.status)
+                    plan.geometry.target_radius, np.asarray(plan.geometry.apoapsis_radius), plan.status,
+                    plan.geometry.target_apoapsis)
         for body, plan in zip(config.bodies, plans, strict=True)
     ]
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY

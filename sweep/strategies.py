@@ -35,6 +35,12 @@ class Geometry(NamedTuple):
     periapsis_radius: np.ndarray  # m, shape (1, P)
     target_radius: np.ndarray  # m, shape (T, 1)
     apoapsis_radius: np.ndarray  # m, shape (T, P): the chosen three-burn apoapsis
+    target_apoapsis: np.ndarray | None = None  # m, shape (T, 1): an elliptical target's apoapsis
+
+    @property
+    def target_far(self) -> np.ndarray:
+        """The target orbit's apoapsis radius (its radius, for a circle)."""
+        return self.target_radius if self.target_apoapsis is None else self.target_apoapsis
 
 
 @dataclass(frozen=True)
@@ -57,22 +63,23 @@ STRATEGIES: tuple[Strategy, ...] = (
         name="direct",
         description="one burn at a periapsis placed at the target radius, hyperbola to circle",
         burns=1,
-        kernel=lambda v, g: direct_capture(v, g.gm, g.target_radius),
+        kernel=lambda v, g: direct_capture(v, g.gm, g.target_radius, target_apoapsis=g.target_apoapsis),
         first_burn_radius=lambda g: g.target_radius,
         uses_periapsis=False,
         burn_radii=lambda g: [g.target_radius],
-        orbits=lambda g: [(g.target_radius, g.target_radius)],
+        orbits=lambda g: [(g.target_radius, g.target_far)],
     ),
     Strategy(
         name="two_burn",
         description="capture at the grid periapsis into the ellipse reaching the target radius, "
         "circularize there",
         burns=2,
-        kernel=lambda v, g: two_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius),
+        kernel=lambda v, g: two_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius,
+                                             target_apoapsis=g.target_apoapsis),
         first_burn_radius=lambda g: g.periapsis_radius,
         uses_periapsis=True,
-        burn_radii=lambda g: [g.periapsis_radius, g.target_radius],
-        orbits=lambda g: [(g.periapsis_radius, g.target_radius), (g.target_radius, g.target_radius)],
+        burn_radii=lambda g: [g.periapsis_radius, g.target_far],
+        orbits=lambda g: [(g.periapsis_radius, g.target_far), (g.target_radius, g.target_far)],
     ),
     Strategy(
         name="three_burn",
@@ -80,13 +87,13 @@ STRATEGIES: tuple[Strategy, ...] = (
         "radius at apoapsis, lower apoapsis to the target radius",
         burns=3,
         kernel=lambda v, g: three_burn_capture(
-            v, g.gm, g.periapsis_radius, g.target_radius, g.apoapsis_radius
+            v, g.gm, g.periapsis_radius, g.target_radius, g.apoapsis_radius, target_apoapsis=g.target_apoapsis
         ),
         first_burn_radius=lambda g: g.periapsis_radius,
         uses_periapsis=True,
         burn_radii=lambda g: [g.periapsis_radius, g.apoapsis_radius, g.target_radius],
         orbits=lambda g: [(g.periapsis_radius, g.apoapsis_radius), (g.target_radius, g.apoapsis_radius),
-                          (g.target_radius, g.target_radius)],
+                          (g.target_radius, g.target_far)],
     ),
 )
 

@@ -159,6 +159,15 @@ def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     }
 
 
+def _orbit_name(dataset: xr.Dataset, b: int, t: int) -> str:
+    """'400 km circular orbit', or '400 x 20,000 km orbit' for an elliptical target."""
+    target = float(dataset["target_altitude"].values[t])
+    if "target_apoapsis_altitude" not in dataset:
+        return f"{_km(target)} circular orbit"
+    apoapsis = float(dataset["target_apoapsis_altitude"].values[b, t])
+    return f"{target:,.0f} x {_km(apoapsis)} orbit (periapsis x apoapsis altitude)"
+
+
 def _km(value: float) -> str:
     return f"{value:,.0f} km" if value >= 10 else f"{value:g} km"
 
@@ -337,7 +346,7 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
         for _, name, title in [f for f in figures or [] if f[0] == body]:
             lines += [f"![{title}]({name})", ""]
         for t, target in enumerate(dataset["target_altitude"].values):
-            lines += [f"### {body.capitalize()}, {_km(target)} circular orbit", "",
+            lines += [f"### {body.capitalize()}, {_orbit_name(dataset, b, t)}", "",
                       sentences[body][t], ""]
             shown = _rows_to_show(periapses.size)
             lines += ["| periapsis | winner along v_inf (km/s) | two_burn = direct at | three_burn = direct at |",

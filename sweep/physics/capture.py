@@ -122,13 +122,22 @@ def free_periapsis_capture(v_inf: ArrayLike, gm: ArrayLike, eccentricity: ArrayL
     return radius, v_inf * np.sqrt(0.5 * (1.0 - eccentricity))
 
 
+def _target_speed(gm, radius, target_radius, target_apoapsis):
+    """Speed on the target orbit at ``radius`` (one of its apsides): circular without an apoapsis."""
+    if target_apoapsis is None:
+        return circular_speed(gm, target_radius)
+    other = np.where(np.equal(radius, target_radius), target_apoapsis, target_radius)
+    return apsis_speed(gm, radius, other)
+
+
 def _coast(gm, radius, other_apsis):
     """Coast from one apsis to the other; none where the ellipse is a circle (next burn at once)."""
     return np.where(np.equal(radius, other_apsis), 0.0, half_period(gm, radius, other_apsis))
 
 
 def direct_capture(
-    v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike, plane_change: ArrayLike = 0.0
+    v_inf: ArrayLike, gm: ArrayLike, target_radius: ArrayLike, plane_change: ArrayLike = 0.0,
+    target_apoapsis: ArrayLike | None = None,
 ) -> Maneuver:
     r"""
     One burn at periapsis, placed at the target radius, from the hyperbola to the circle.
@@ -143,6 +152,9 @@ def direct_capture(
         Radius of the circular target orbit. [m]
     plane_change : numeric
         Plane change made with the capture burn (law of cosines, :func:`combined_burn`). [rad]
+    target_apoapsis : numeric, optional
+        Apoapsis radius of an elliptical target whose periapsis is ``target_radius``; the
+        capture burn is then made at that periapsis. ``None``: a circle. [m]
 
     Returns
     -------
@@ -161,14 +173,14 @@ def direct_capture(
     >>> round(float(m.burns[0]), 0)
     3590.0
     """
-    burn = combined_burn(hyperbolic_periapsis_speed(v_inf, gm, target_radius), circular_speed(gm, target_radius),
-                         plane_change)
+    burn = combined_burn(hyperbolic_periapsis_speed(v_inf, gm, target_radius),
+                         _target_speed(gm, target_radius, target_radius, target_apoapsis), plane_change)
     return Maneuver((burn,), np.where(np.isnan(burn), np.nan, 0.0))
 
 
 def two_burn_capture(
     v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike,
-    plane_change: ArrayLike = 0.0, first_share: ArrayLike = 0.0,
+    plane_change: ArrayLike = 0.0, first_share: ArrayLike = 0.0, target_apoapsis: ArrayLike | None = None,
 ) -> Maneuver:
     r"""
     Capture at the approach periapsis into the ellipse that touches the target radius,
@@ -189,6 +201,10 @@ def two_burn_capture(
         Total plane change. [rad]
     first_share : numeric
         Part of it made with the first burn; the rest with the second. [rad]
+    target_apoapsis : numeric, optional
+        Apoapsis radius of an elliptical target with periapsis ``target_radius``: the capture
+        ellipse then reaches the target's apoapsis, where the second burn moves the other apsis
+        to the target's periapsis. ``None``: a circle. [m]
 
     Returns
     -------
@@ -203,11 +219,13 @@ def two_burn_capture(
     :math:`\Delta v_1 = v_{hyp}(r_p) - v_{ell}(r_p)`,
     :math:`\Delta v_2 = |v_c(r_t) - v_{ell}(r_t)|`.
     """
+    far = target_radius if target_apoapsis is None else target_apoapsis
     first = combined_burn(hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius),
-                          apsis_speed(gm, periapsis_radius, target_radius), first_share)
-    second = combined_burn(apsis_speed(gm, target_radius, periapsis_radius), circular_speed(gm, target_radius),
+                          apsis_speed(gm, periapsis_radius, far), first_share)
+    second = combined_burn(apsis_speed(gm, far, periapsis_radius),
+                           _target_speed(gm, far, target_radius, target_apoapsis),
                            np.asarray(plane_change) - first_share)
-    return Maneuver((first, second), _coast(gm, periapsis_radius, target_radius))
+    return Maneuver((first, second), _coast(gm, periapsis_radius, far))
 
 
 def three_burn_capture(
@@ -217,6 +235,7 @@ def three_burn_capture(
     target_radius: ArrayLike,
     apoapsis_radius: ArrayLike,
     plane_change: ArrayLike = 0.0,
+    target_apoapsis: ArrayLike | None = None,
 ) -> Maneuver:
     r"""
     Capture into a high ellipse, move periapsis to the target radius at its apoapsis, then
@@ -236,6 +255,9 @@ def three_burn_capture(
         Apoapsis radius of the intermediate ellipse, no smaller than either other radius. [m]
     plane_change : numeric
         Plane change, made with the apoapsis burn where the speed is lowest. [rad]
+    target_apoapsis : numeric, optional
+        Apoapsis radius of an elliptical target with periapsis ``target_radius``: the third burn
+        lowers the apoapsis to it. ``None``: a circle. [m]
 
     Returns
     -------
@@ -252,25 +274,29 @@ def three_burn_capture(
     ([1]_ Ch. 6; [2]_ Sec. 6.3). With :math:`r_a = r_t \ge r_p` it reduces to
     :func:`two_burn_capture`.
     """
-    burns = _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change)
+    burns = _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change,
+                              target_apoapsis)
     time = _coast(gm, periapsis_radius, apoapsis_radius) + _coast(gm, target_radius, apoapsis_radius)
     return Maneuver(burns, time)
 
 
-def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0):
+def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0,
+                      target_apoapsis=None):
     """The three burn magnitudes of :func:`three_burn_capture`, without the times."""
     first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
         gm, periapsis_radius, apoapsis_radius
     )
     second = combined_burn(apsis_speed(gm, apoapsis_radius, periapsis_radius),
                            apsis_speed(gm, apoapsis_radius, target_radius), plane_change)
-    third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius) - circular_speed(gm, target_radius))
+    third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius)
+                   - _target_speed(gm, target_radius, target_radius, target_apoapsis))
     return first, second, third
 
 
-def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0):
+def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0, target_apoapsis=None):
     """Total three-burn delta-v at zero arrival speed (the v_inf-free part plus a constant)."""
-    return sum(_three_burn_burns(0.0, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change))
+    return sum(_three_burn_burns(0.0, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change,
+                                 target_apoapsis))
 
 
 def best_intermediate_apoapsis(
@@ -278,6 +304,7 @@ def best_intermediate_apoapsis(
     periapsis_radius: ArrayLike,
     target_radius: ArrayLike,
     upper_radius: ArrayLike,
+    target_apoapsis: ArrayLike | None = None,
 ) -> np.ndarray:
     r"""
     Intermediate apoapsis that minimises the total three-burn delta-v within a bound.
@@ -290,11 +317,14 @@ def best_intermediate_apoapsis(
         Approach periapsis and target radii. [m]
     upper_radius : numeric
         Largest admissible apoapsis radius. [m]
+    target_apoapsis : numeric, optional
+        Apoapsis of an elliptical target (periapsis ``target_radius``); ``None``: a circle. [m]
 
     Returns
     -------
     apoapsis_radius : numeric
-        The minimising radius in :math:`[\max(r_p, r_t), r_{upper}]`; the lower end where
+        The minimising radius in :math:`[\max(r_p, r_t), r_{upper}]` (the target's apoapsis in
+        place of :math:`r_t` for an elliptical target); the lower end where
         the bound lies below it; NaN where any input is NaN. The answer holds for every
         arrival speed (see the module notes). [m]
 
@@ -306,15 +336,18 @@ def best_intermediate_apoapsis(
     In the coplanar impulsive model the total has been seen to fall monotonically with the
     apoapsis (so the bound decides), but nothing here relies on that.
     """
-    gm, periapsis_radius, target_radius, upper_radius = np.broadcast_arrays(
-        *(np.asarray(x, dtype=float) for x in (gm, periapsis_radius, target_radius, upper_radius))
+    far = target_radius if target_apoapsis is None else target_apoapsis
+    gm, periapsis_radius, target_radius, upper_radius, far = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (gm, periapsis_radius, target_radius, upper_radius, far))
     )
-    lower = np.maximum(periapsis_radius, target_radius)
+    lower = np.maximum(periapsis_radius, far)
     upper = np.maximum(upper_radius, lower)
-    return _scan_and_refine(
-        lambda radius, index: _three_burn_total(gm[index], periapsis_radius[index], target_radius[index], radius),
-        lower, upper, np.log, np.exp,
-    )
+
+    def cost(radius, index):
+        return _three_burn_total(gm[index], periapsis_radius[index], target_radius[index], radius, 0.0,
+                                 None if target_apoapsis is None else far[index])
+
+    return _scan_and_refine(cost, lower, upper, np.log, np.exp)
 
 
 def _scan_and_refine(cost, lower, upper, forward, inverse):
@@ -364,7 +397,7 @@ def _scan_and_refine(cost, lower, upper, forward, inverse):
 
 def best_plane_change_split(
     v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike,
-    plane_change: ArrayLike,
+    plane_change: ArrayLike, target_apoapsis: ArrayLike | None = None,
 ) -> np.ndarray:
     r"""
     Part of the plane change that ``two_burn`` should make with its first burn.
@@ -386,19 +419,22 @@ def best_plane_change_split(
         The share in :math:`[0, \Delta i]` minimising the total of :func:`two_burn_capture`
         (scan and golden-section search, as for the apoapsis); 0 without a plane change. [rad]
     """
+    far = target_radius if target_apoapsis is None else target_apoapsis
     arrays = np.broadcast_arrays(*(np.asarray(x, dtype=float)
-                                   for x in (v_inf, gm, periapsis_radius, target_radius, plane_change)))
-    v_inf, gm, periapsis_radius, target_radius, plane_change = arrays
+                                   for x in (v_inf, gm, periapsis_radius, target_radius, plane_change, far)))
+    v_inf, gm, periapsis_radius, target_radius, plane_change, far = arrays
 
     def cost(share, index):
         return sum(two_burn_capture(v_inf[index], gm[index], periapsis_radius[index], target_radius[index],
-                                    plane_change[index], share).burns)
+                                    plane_change[index], share,
+                                    None if target_apoapsis is None else far[index]).burns)
 
     return _scan_and_refine(cost, np.zeros_like(plane_change), plane_change, lambda x: x, lambda u: u)
 
 
 def time_limited_apoapsis(
-    gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike, max_time: ArrayLike
+    gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike, max_time: ArrayLike,
+    target_apoapsis: ArrayLike | None = None,
 ) -> np.ndarray:
     r"""
     Largest intermediate apoapsis whose three-burn sequence reaches the target in time.
@@ -425,14 +461,15 @@ def time_limited_apoapsis(
     :math:`2 (\mu (t_{max}/2\pi)^2)^{1/3}` (where each half period alone reaches
     :math:`t_{max}/2`) brackets the single root.
     """
-    gm, periapsis_radius, target_radius, max_time = np.broadcast_arrays(
-        *(np.asarray(x, dtype=float) for x in (gm, periapsis_radius, target_radius, max_time))
+    far = target_radius if target_apoapsis is None else target_apoapsis
+    gm, periapsis_radius, target_radius, max_time, far = np.broadcast_arrays(
+        *(np.asarray(x, dtype=float) for x in (gm, periapsis_radius, target_radius, max_time, far))
     )
 
     def time_of(apoapsis):
         return three_burn_capture(0.0, gm, periapsis_radius, target_radius, apoapsis).time
 
-    lower = np.maximum(periapsis_radius, target_radius)
+    lower = np.maximum(periapsis_radius, far)
     upper = np.maximum(2.0 * np.cbrt(gm * (max_time / (2.0 * np.pi)) ** 2), lower)
     low, high = np.log(lower), np.log(upper)
     for _ in range(_BISECTION_STEPS):
