@@ -193,13 +193,15 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         ))
     for name, (values, attrs) in body_vars.items():
         data_vars[name] = (("body",), values, attrs)
-    free = ("the circular orbit whose altitude the mission may choose: r = 2 mu / v_inf^2, delta-v = "
-            "v_inf / sqrt(2) (Curtis 2014, Ch. 8, optimal periapsis for e = 0); NaN where that altitude is "
-            "below the lowest safe periapsis or beyond the apoapsis bound")
-    data_vars["free_periapsis_altitude"] = (("body", "v_inf"), arrays.free_periapsis_altitude, _attrs(
-        "km", "altitude of the circular orbit cheapest to capture into", comment=free))
-    data_vars["free_periapsis_delta_v"] = (("body", "v_inf"), arrays.free_periapsis_delta_v, _attrs(
-        "m s-1", "single-burn delta-v into the circular orbit cheapest to capture into", comment=free))
+    free = ("an orbit of the target's eccentricity e whose periapsis the mission may choose: r_p = 2 mu (1 - e) / "
+            "(v_inf^2 (1 + e)), delta-v = v_inf sqrt((1 - e) / 2) (Curtis 2014, Ch. 8, optimal periapsis; for a "
+            "circular target r = 2 mu / v_inf^2); NaN where that periapsis is below the lowest safe periapsis or "
+            "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target")
+    free_dims = ("body", "v_inf", "target_altitude")
+    data_vars["free_periapsis_altitude"] = (free_dims, arrays.free_periapsis_altitude, _attrs(
+        "km", "periapsis altitude of the orbit of the target's shape cheapest to capture into", comment=free))
+    data_vars["free_periapsis_delta_v"] = (free_dims, arrays.free_periapsis_delta_v, _attrs(
+        "m s-1", "single-burn delta-v into the orbit of the target's shape cheapest to capture into", comment=free))
     if config.target_apoapsis_altitude is not None or config.target_period is not None:
         how = (f"apoapsis altitude {config.target_apoapsis_altitude} km" if config.target_apoapsis_altitude is not None
                else f"period {config.target_period / 3600.0:g} h")

@@ -181,8 +181,8 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
         "apoapsis_bound": ((nbody,), np.float64),
         "sphere_of_influence": ((nbody,), np.float64),
         "hill_radius": ((nbody,), np.float64),
-        "free_periapsis_altitude": ((nbody, shape[1]), np.float64),
-        "free_periapsis_delta_v": ((nbody, shape[1]), np.float64),
+        "free_periapsis_altitude": ((nbody, shape[1], ntarget), np.float64),
+        "free_periapsis_delta_v": ((nbody, shape[1], ntarget), np.float64),
         "target_apoapsis_altitude": ((nbody, ntarget), np.float64),
     }
 
@@ -261,8 +261,12 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
         out.sphere_of_influence[index] = body.sphere_of_influence / _KM
         out.hill_radius[index] = body.hill_radius / _KM
         out.target_apoapsis_altitude[index] = (plan.geometry.target_far[:, 0] - body.radius) / _KM
-        radius, burn = free_periapsis_capture(config.v_inf * _KM, body.gm)
-        usable = (radius >= body.radius + body.safe_periapsis_altitude) & (radius <= plan.apoapsis_bound)
+        # the target's shape (eccentricity), with the periapsis left free: (v_inf, target)
+        near, far = plan.geometry.target_radius[:, 0], plan.geometry.target_far[:, 0]
+        eccentricity = (far - near) / (far + near)
+        radius, burn = free_periapsis_capture((config.v_inf * _KM)[:, None], body.gm, eccentricity[None, :])
+        apoapsis = radius * (1 + eccentricity) / (1 - eccentricity)
+        usable = (radius >= body.radius + body.safe_periapsis_altitude) & (apoapsis <= plan.apoapsis_bound)
         out.free_periapsis_altitude[index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
         out.free_periapsis_delta_v[index] = np.where(usable, burn, np.nan)
     work = chunks(config.shape, points_per_chunk)

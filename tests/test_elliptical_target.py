@@ -83,3 +83,14 @@ def test_sweep_with_an_elliptical_target(config_file, tmp_path):
 def test_target_orbit_errors(table, message):
     with pytest.raises(ConfigError, match=message):
         parse_config(ELLIPSE.replace("period = 10.0", table), "e.toml")
+
+
+def test_free_periapsis_is_never_dearer_than_direct_into_the_target_ellipse():
+    # The free periapsis minimises the single capture burn over every periapsis for the target's
+    # eccentricity (Curtis, Ch. 8), so direct capture at the grid's periapsis cannot beat it.
+    cube = run(parse_config(ELLIPSE), workers=1)
+    free = cube.free_periapsis_delta_v.isel(body=0).values  # (v_inf, target)
+    direct = cube.delta_v.isel(strategy=0, body=0, periapsis_altitude=0).values  # (v_inf, target)
+    both = np.isfinite(free) & np.isfinite(direct)
+    assert both.sum() >= 3
+    assert (free[both] <= direct[both] + 1e-9).all()
