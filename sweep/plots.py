@@ -63,6 +63,11 @@ _FINITE_CROSSOVER_VARIABLES = {"two_burn": "finite_crossover_v_inf",
 _CROSSOVER_STYLE = {"two_burn": ("--", "o"), "three_burn": (":", "s")}
 _V_INF_LABEL = "arrival speed $v_\\infty$, km/s"
 _TARGET_LABEL = "target orbit altitude, km"
+_TARGET_PERIAPSIS_LABEL = "target orbit periapsis altitude, km"  # elliptical targets
+
+
+def _target_label(dataset: xr.Dataset) -> str:
+    return _TARGET_PERIAPSIS_LABEL if "target_apoapsis_altitude" in dataset else _TARGET_LABEL
 
 
 # ---- names -------------------------------------------------------------------------------------
@@ -365,7 +370,7 @@ def _winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     geometry = _MapAxes(dataset["v_inf"].values, targets, names)
     crossing = _crossover_names(dataset, names, _CROSSOVER_VARIABLES)
     contoured = False
-    for ax, p in zip(_panel_grid(figure, len(shown), columns, _TARGET_LABEL), shown, strict=True):
+    for ax, p in zip(_panel_grid(figure, len(shown), columns, _target_label(dataset)), shown, strict=True):
         geometry.draw(ax, best[:, :, p])
         contoured |= geometry.contours(ax, saving[:, :, p], levels)
         geometry.crossovers(ax, {n: dataset[_CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
@@ -394,7 +399,7 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     geometry = _MapAxes(dataset["v_inf"].values, dataset["target_altitude"].values, names)
     crossing = _crossover_names(dataset, names, _CROSSOVER_VARIABLES)
     finite_crossing = _crossover_names(dataset, names, _FINITE_CROSSOVER_VARIABLES)
-    labels = [f"periapsis {_km(periapses[p])}\n{_TARGET_LABEL}" for p in rows]
+    labels = [f"periapsis {_km(periapses[p])}\n{_target_label(dataset)}" for p in rows]
     axes = _panel_grid(figure, len(rows) * columns, columns, labels)
     impulsive = dataset["best_strategy"].values[b]  # (V, T, P)
     best = dataset["finite_best_strategy"].values[b]  # (V, T, P, F)
@@ -451,7 +456,7 @@ def _plane_change_figure(dataset: xr.Dataset, b: int) -> Figure:
     figure = _new_figure(width, 2.75 * rows + 1.1, title, f"{which}; {CAPTION}")
     geometry = _MapAxes(dataset["v_inf"].values, targets, names)
     contoured = False
-    for ax, a in zip(_panel_grid(figure, len(shown), columns, _TARGET_LABEL), shown, strict=True):
+    for ax, a in zip(_panel_grid(figure, len(shown), columns, _target_label(dataset)), shown, strict=True):
         geometry.draw(ax, best[:, :, p, a])
         contoured |= geometry.contours(ax, saving[:, :, p, a], levels)
         ax.set_title(f"plane change {angles[a]:g}°", fontsize=9.5)
