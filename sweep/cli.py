@@ -59,6 +59,12 @@ def _build_parser() -> argparse.ArgumentParser:
     plot_parser.add_argument("cube", type=Path, help="netCDF cube written by capsweep run")
     plot_parser.add_argument("--out", type=Path, help="output folder (default: the cube's folder)")
 
+    compare_parser = commands.add_parser("compare", help="drift report between two cubes; exit 1 past tolerance")
+    compare_parser.add_argument("old", type=Path, help="earlier cube")
+    compare_parser.add_argument("new", type=Path, help="later cube")
+    compare_parser.add_argument("--tolerance", type=float, default=1e-9,
+                                help="largest relative change accepted (default 1e-9)")
+
     universal_parser = commands.add_parser(
         "universal", help="the dimensionless regime map for every body: cube and figure")
     universal_parser.add_argument("--out", type=Path, default=_DEFAULT_OUT / "universal",
@@ -197,6 +203,17 @@ def _plot(args: argparse.Namespace) -> int:
     return 0
 
 
+def _compare(args: argparse.Namespace) -> int:
+    from sweep.compare import compare_cubes, render_drift
+
+    if not args.tolerance >= 0:
+        raise SweepError(f"--tolerance must be >= 0, got {args.tolerance!r}")
+    with _open_cube(args.old) as old, _open_cube(args.new) as new:
+        drift = compare_cubes(old, new)
+    print(render_drift(drift, args.tolerance))
+    return 1 if drift.exceeds(args.tolerance) else 0
+
+
 def _universal(args: argparse.Namespace) -> int:
     import numpy as np
 
@@ -227,7 +244,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     level = {0: logging.WARNING, 1: logging.INFO}.get(getattr(args, "verbose", 0), logging.DEBUG)
     logging.basicConfig(level=level, format="capsweep: %(message)s")
     handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot,
-                "universal": _universal}
+                "universal": _universal, "compare": _compare}
     try:
         return handlers[args.command](args)
     except SweepError as err:

@@ -1,0 +1,83 @@
+"""Drift between two cubes, for nightly regression checks: what was added or removed, how far
+numbers moved, and where the winner changed. Reads the cubes only."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import xarray as xr
+
+__all__ = ["Drift", "compare_cubes", "render_drift"]
+
+_WINNERS = ("best_strategy", "finite_best_strategy", "plane_change_best_strategy")
+
+
+@dataclass
+class Drift:
+    """The differences between two cubes."""
+
+    added: list[str] = field(default_factory=list)  # variables and coordinates only in the new cube
+    removed: list[str] = field(default_factory=list)  # only in the old cube
+    reshaped: list[str] = field(default_factory=list)  # in both, with other dimensions or coordinates
+    largest: dict[str, tuple[float, float]] = field(default_factory=dict)  # name -> (max abs, max rel) change
+    nan_changes: dict[str, int] = field(default_factory=dict)  # name -> points where only one side is NaN
+    winner_changes: dict[str, int] = field(default_factory=dict)  # winner variable -> points that changed
+
+    def exceeds(self, tolerance: float) -> bool:
+        """True if anything but a relative change at or below ``tolerance`` differs."""
+        return bool(self.added or self.removed or self.reshaped or any(self.nan_changes.values())
+                    or any(self.winner_changes.values())
+                    or any(relative > tolerance for _, relative in self.largest.values()))
+
+
+def compare_cubes(old: xr.Dataset, new: xr.Dataset) -> Drift:
+    """Compare every numeric variable and coordinate the two cubes share, point by point."""
+    drift = Drift()
+    names_old = set(old.variables)
+    names_new = set(new.variables)
+    drift.added = sorted(names_new - names_old)
+    drift.removed = sorted(names_old - names_new)
+    for name in sorted(names_old & names_new):
+        a, b = old[name], new[name]
+        if a.dims != b.dims or a.shape != b.shape:
+            drift.reshaped.append(name)
+            continue
+        if a.dtype.kind not in "fiu" or b.dtype.kind not in "fiu":
+            if not np.array_equal(a.values, b.values):
+                drift.reshaped.append(name)
+            continue
+        x, y = a.values.astype(float), b.values.astype(float)
+        one_nan = np.isnan(x) != np.isnan(y)
+        drift.nan_changes[name] = int(one_nan.sum())
+        both = ~np.isnan(x) & ~np.isnan(y)
+        if name in _WINNERS:
+            drift.winner_changes[name] = int((x != y)[both].sum())
+            continue
+        if both.any():
+            change = np.abs(y[both] - x[both])
+            scale = np.maximum(np.abs(x[both]), np.abs(y[both]))
+            relative = np.where(scale > 0, change / np.where(scale > 0, scale, 1.0), 0.0)
+            drift.largest[name] = (float(change.max()), float(relative.max()))
+    return drift
+
+
+def render_drift(drift: Drift, tolerance: float) -> str:
+    """A short plain-text report."""
+    lines = []
+    for label, names in (("added", drift.added), ("removed", drift.removed), ("changed shape", drift.reshaped)):
+        if names:
+            lines.append(f"{label}: {', '.join(names)}")
+    moved = {k: v for k, v in drift.largest.items() if v[0] > 0}
+    for name, (absolute, relative) in sorted(moved.items(), key=lambda item: -item[1][1]):
+        flag = "  EXCEEDS" if relative > tolerance else ""
+        lines.append(f"{name}: largest change {absolute:.6g} (relative {relative:.3g}){flag}")
+    for name, count in drift.nan_changes.items():
+        if count:
+            lines.append(f"{name}: {count} points defined in one cube only")
+    for name, count in drift.winner_changes.items():
+        if count:
+            lines.append(f"{name}: winner changed at {count} grid points")
+    verdict = "drift beyond tolerance" if drift.exceeds(tolerance) else "no drift beyond tolerance"
+    lines.append(f"{verdict} (relative tolerance {tolerance:g})")
+    return "\n".join(lines)
