@@ -18,9 +18,10 @@ import xarray as xr
 from sweep import __version__, run
 from sweep.catalog import catalog
 from sweep.config import load_config
-from sweep.dataset import write_dataset
+from sweep.dataset import fingerprint, write_dataset
 from sweep.errors import SweepError
 from sweep.evaluate import estimate_bytes
+from sweep.lock import output_lock
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.summary import answers, summary_tables, write_summary
 
@@ -43,6 +44,8 @@ def _build_parser() -> argparse.ArgumentParser:
     run_parser.add_argument("config", nargs="?", help="TOML config (default: the packaged demo)")
     run_parser.add_argument("--out", type=Path, help="output folder (default: outputs/<config name>/)")
     run_parser.add_argument("--workers", type=int, default=0, help="worker threads (default: all cores)")
+    run_parser.add_argument("--force", action="store_true",
+                            help="recompute even when the cube is up to date with the config, catalog and version")
     run_parser.add_argument("-q", "--quiet", action="store_true", help="print only where the files went")
     run_parser.add_argument("-v", "--verbose", action="count", default=0, help="log progress (-vv: debug)")
 
@@ -89,12 +92,17 @@ def _run(args: argparse.Namespace) -> int:
     folder = args.out or _DEFAULT_OUT / config.name
     if args.workers < 0:
         raise SweepError(f"--workers must be 0 (all cores) or a positive count, got {args.workers}")
-    started = time.perf_counter()
-    dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet)
-    elapsed = time.perf_counter() - started
-    cube = _write(lambda: write_dataset(dataset, folder / f"{config.name}.nc"), folder)
-    figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
-    files = _write(lambda: write_summary(dataset, folder), folder)
+    cube_path = folder / f"{config.name}.nc"
+    if not args.force and _up_to_date(cube_path, config):
+        print(f"up to date: {cube_path} (config, body catalog and capsweep version unchanged; --force recomputes)")
+        return 0
+    with output_lock(folder):
+        started = time.perf_counter()
+        dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet)
+        elapsed = time.perf_counter() - started
+        cube = _write(lambda: write_dataset(dataset, cube_path), folder)
+        figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
+        files = _write(lambda: write_summary(dataset, folder), folder)
     points = int(dataset["best_strategy"].size)
     print(f"cube: {cube}")
     print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
@@ -103,6 +111,18 @@ def _run(args: argparse.Namespace) -> int:
         print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated in {elapsed:.2f} s")
         print(_short_answer(dataset))
     return 0
+
+
+def _up_to_date(cube: Path, config) -> bool:
+    """The cube exists (writes are atomic, so it is complete) and records the same inputs and version."""
+    if not cube.is_file():
+        return False
+    expected = fingerprint(config)
+    try:
+        with xr.open_dataset(cube, engine="netcdf4") as existing:
+            return all(existing.attrs.get(key) == value for key, value in expected.items())
+    except (OSError, ValueError):
+        return False
 
 
 def _write_figures(dataset: xr.Dataset, folder: Path) -> list[Path]:

@@ -19,7 +19,7 @@ from sweep.grid import DIMENSIONS
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.strategies import CHALLENGERS, NO_STRATEGY, STATUSES, STRATEGIES, strategy_names
 
-__all__ = ["CAUTION", "REFERENCES", "build_dataset", "open_cube", "write_dataset"]
+__all__ = ["CAUTION", "REFERENCES", "build_dataset", "fingerprint", "open_cube", "write_dataset"]
 
 CAUTION = (
     "Preliminary estimates from a patched-conic, two-body model with impulsive burns and, where a thrust "
@@ -123,6 +123,15 @@ def _finite_variables(config: SweepConfig, finite, names: list[str]) -> tuple[di
                              f"falsi (Illinois) on the finite-burn model to 1e-3 m/s; searched {v_min:g} to "
                              f"{v_max:g} km s-1 (the grid); NaN where no sign change or a strategy is infeasible"))
     return coords, data
+
+
+def fingerprint(config: SweepConfig) -> dict[str, str]:
+    """What decides whether a cube is up to date: config and catalog hashes and the engine version."""
+    return {
+        "source": f"capsweep {__version__}",
+        "config_sha256": hashlib.sha256(config.text.encode()).hexdigest(),
+        "catalog_sha256": hashlib.sha256(catalog_text().encode()).hexdigest(),
+    }
 
 
 def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
@@ -236,14 +245,12 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
         "title": f"capsweep capture trade: {config.name}",
         "summary": config.description or "capture-strategy delta-v sweep",
         "institution": "capsweep user",
-        "source": f"capsweep {__version__}",
         "history": f"{datetime.now(UTC).strftime('%Y-%m-%dT%H:%M:%SZ')} capsweep {__version__} run of {config.path}",
         "references": REFERENCES,
         "comment": CAUTION,
         "strategies": "; ".join(f"{s.name}: {s.description}" for s in STRATEGIES),
         "config_toml": config.text,
-        "config_sha256": hashlib.sha256(config.text.encode()).hexdigest(),
-        "catalog_sha256": hashlib.sha256(catalog_text().encode()).hexdigest(),
+        **fingerprint(config),
         "spacecraft_arrival_mass_kg": config.arrival_mass,
         "spacecraft_specific_impulse_s": config.specific_impulse,
     }

@@ -113,7 +113,7 @@ def test_failed_write_keeps_the_previous_cube(config_file, tmp_path, monkeypatch
         raise OSError(28, "No space left on device", str(args[0]) if args else None)
 
     monkeypatch.setattr(xr.Dataset, "to_netcdf", broken)
-    assert main(["run", str(config_file()), "--out", str(out), "-q"]) == 2
+    assert main(["run", str(config_file()), "--out", str(out), "-q", "--force"]) == 2
     assert (out / "small-test.nc").read_bytes() == before
     assert not list(out.glob(".*.part"))
 

@@ -1,0 +1,66 @@
+"""Nightly operation: skip an up-to-date cube, --force, one writer per folder, stale-lock takeover."""
+
+from __future__ import annotations
+
+import json
+import os
+import socket
+import subprocess
+import sys
+
+import pytest
+
+from sweep.cli import main
+from sweep.lock import LOCK_NAME, LockError, output_lock
+
+
+def test_unchanged_inputs_skip_and_force_recomputes(config_file, small_config_text, tmp_path, capsys):
+    out = tmp_path / "out"
+    path = config_file()
+    assert main(["run", str(path), "--out", str(out), "-q"]) == 0
+    cube = out / "small-test.nc"
+    first = cube.stat().st_mtime_ns
+    capsys.readouterr()
+    assert main(["run", str(path), "--out", str(out), "-q"]) == 0
+    assert "up to date" in capsys.readouterr().out and cube.stat().st_mtime_ns == first
+    assert main(["run", str(path), "--out", str(out), "-q", "--force"]) == 0
+    assert cube.stat().st_mtime_ns != first
+    # a changed config (even a comment: the hash is of the exact text) is not up to date
+    path.write_text(small_config_text + "\n# edited\n", encoding="utf-8")
+    capsys.readouterr()
+    assert main(["run", str(path), "--out", str(out), "-q"]) == 0
+    assert "up to date" not in capsys.readouterr().out
+    assert not (out / LOCK_NAME).exists()  # released after the run
+
+
+def test_a_live_holder_blocks_a_second_writer(config_file, tmp_path, capsys):
+    out = tmp_path / "out"
+    holder = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(30)"])
+    try:
+        out.mkdir()
+        (out / LOCK_NAME).write_text(json.dumps({"pid": holder.pid, "host": socket.gethostname(),
+                                                 "started": "2026-12-02T03:00:00"}))
+        assert main(["run", str(config_file()), "--out", str(out), "-q"]) == 2
+        err = capsys.readouterr().err
+        assert f"output folder is in use by capsweep pid {holder.pid}" in err
+        assert not (out / "small-test.nc").exists()
+    finally:
+        holder.kill()
+        holder.wait()
+
+
+def test_a_stale_lock_from_a_dead_process_is_taken_over(tmp_path, caplog):
+    gone = subprocess.Popen([sys.executable, "-c", "pass"])
+    gone.wait()  # its pid is now free (not reused this quickly in practice)
+    (tmp_path / LOCK_NAME).write_text(json.dumps({"pid": gone.pid, "host": socket.gethostname()}))
+    with output_lock(tmp_path) as lock:
+        assert json.loads(lock.read_text())["pid"] == os.getpid()
+    assert "taking over a stale lock" in caplog.text
+    assert not (tmp_path / LOCK_NAME).exists()
+
+
+def test_nested_lock_in_one_folder_is_refused(tmp_path):
+    with output_lock(tmp_path):
+        with pytest.raises(LockError, match=r"output folder is in use by capsweep pid \d+"):
+            with output_lock(tmp_path):
+                pass
