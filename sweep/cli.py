@@ -11,6 +11,7 @@ import logging
 import sys
 import time
 from collections.abc import Sequence
+from contextlib import contextmanager
 from pathlib import Path
 
 import xarray as xr
@@ -96,7 +97,8 @@ def _run(args: argparse.Namespace) -> int:
     if not args.force and _up_to_date(cube_path, config):
         print(f"up to date: {cube_path} (config, body catalog and capsweep version unchanged; --force recomputes)")
         return 0
-    with output_lock(folder):
+    with output_lock(folder), _log_file(folder / "capsweep.log"):
+        logging.getLogger("sweep").info("run of %s into %s", config.path, folder)
         started = time.perf_counter()
         dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet)
         elapsed = time.perf_counter() - started
@@ -111,6 +113,24 @@ def _run(args: argparse.Namespace) -> int:
         print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated in {elapsed:.2f} s")
         print(_short_answer(dataset))
     return 0
+
+
+@contextmanager
+def _log_file(path: Path):
+    """Copy the run's log lines (INFO and up) to a file beside the outputs."""
+    handler = logging.FileHandler(path, encoding="utf-8")
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    handler.setLevel(logging.INFO)
+    library = logging.getLogger("sweep")
+    previous = library.level
+    library.addHandler(handler)
+    library.setLevel(min(previous or logging.WARNING, logging.INFO))
+    try:
+        yield
+    finally:
+        library.removeHandler(handler)
+        library.setLevel(previous)
+        handler.close()
 
 
 def _up_to_date(cube: Path, config) -> bool:
@@ -148,7 +168,8 @@ def _short_answer(dataset: xr.Dataset) -> str:
     for body, sentences in answers(dataset).items():
         out.append(f"{body}:")
         out += [f"  {sentence}" for sentence in sentences]
-    out.append("Preliminary patched-conic, impulsive estimates: verify with higher-fidelity propagation.")
+    out.append("Preliminary patched-conic estimates (impulsive burns; simple finite burns where a thrust axis is "
+               "given): verify with higher-fidelity propagation.")
     return "\n".join(out)
 
 
@@ -261,7 +282,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status."""
     parser = _build_parser()
     args = parser.parse_args(argv)
-    level = {0: logging.WARNING, 1: logging.INFO}.get(getattr(args, "verbose", 0), logging.DEBUG)
+    verbose, quiet = getattr(args, "verbose", 0), getattr(args, "quiet", False)
+    # Without a terminal (cron) progress comes as log lines, so INFO is on unless --quiet.
+    level = logging.DEBUG if verbose > 1 else logging.INFO if verbose or not (quiet or sys.stderr.isatty()) \
+        else logging.WARNING
     logging.basicConfig(level=level, format="capsweep: %(message)s")
     handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot,
                 "universal": _universal, "compare": _compare}
@@ -272,6 +296,10 @@ def main(argv: Sequence[str] | None = None) -> int:
             raise
         print(f"capsweep: error: {err}", file=sys.stderr)
         return 2
+    except KeyboardInterrupt:
+        print("capsweep: interrupted; no new cube was written and earlier outputs are untouched; run the same "
+              "command again to start over", file=sys.stderr)
+        return 130
     except BrokenPipeError:  # output piped into a reader that closed early, e.g. `| head`
         sys.stderr.close()
         return 0

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from joblib import Parallel, delayed
-from tqdm.auto import tqdm
 
 from sweep.config import SweepConfig
 from sweep.evaluate_finite import FiniteArrays, evaluate_finite, finite_layout
@@ -31,6 +30,7 @@ from sweep.physics.capture import (
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed
 from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.progress import track
 from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
 
 __all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
@@ -273,7 +273,7 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     logger.info("evaluating %d points in %d chunks on %d threads", int(np.prod(config.shape)), len(work), workers)
     tasks = (delayed(_run_chunk)(chunk, plans[chunk.body], config.v_inf, config, out) for chunk in work)
     runner = Parallel(n_jobs=min(workers, len(work)), backend="threading", return_as="generator")
-    for _ in tqdm(runner(tasks), total=len(work), disable=not progress, unit="chunk", desc="sweep"):
+    for _ in track(runner(tasks), len(work), int(np.prod(config.shape)), "sweep", progress):
         pass
     if config.thrust is not None:
         out.finite = evaluate_finite(config, plans, workers, progress)

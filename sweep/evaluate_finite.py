@@ -18,12 +18,12 @@ from dataclasses import dataclass
 
 import numpy as np
 from joblib import Parallel, delayed
-from tqdm.auto import tqdm
 
 from sweep.config import SweepConfig
 from sweep.grid import chunks
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.progress import track
 from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, Geometry, pick_best
 
 __all__ = ["FiniteArrays", "evaluate_finite", "finite_layout"]
@@ -298,7 +298,7 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
         tasks = (delayed(_run_and_place)(out, c, bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop],
                                          config.thrust, exhaust_speed, config.arrival_mass, config.steering)
                  for c in work)
-        for _ in tqdm(runner(tasks), total=len(work), disable=not progress, unit="chunk", desc="finite burns"):
+        for _ in track(runner(tasks), len(work), int(np.prod(config.finite_shape)), "finite burns", progress):
             pass
     finally:
         if folder is not None:

@@ -64,3 +64,25 @@ def test_nested_lock_in_one_folder_is_refused(tmp_path):
         with pytest.raises(LockError, match=r"output folder is in use by capsweep pid \d+"):
             with output_lock(tmp_path):
                 pass
+
+
+def test_progress_lines_and_log_file_without_a_terminal(config_file, tmp_path, caplog):
+    out = tmp_path / "out"
+    with caplog.at_level("INFO", logger="sweep"):
+        assert main(["run", str(config_file()), "--out", str(out)]) == 0
+    assert any("sweep: 100% (" in r.getMessage() and "points/s" in r.getMessage() for r in caplog.records)
+    log = (out / "capsweep.log").read_text()
+    assert "sweep: 100% (" in log and "run of" in log
+
+
+def test_ctrl_c_exits_cleanly_and_leaves_no_lock(config_file, tmp_path, capsys, monkeypatch):
+    import sweep.cli
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(sweep.cli, "run", interrupted)
+    out = tmp_path / "out"
+    assert main(["run", str(config_file()), "--out", str(out)]) == 130
+    assert "interrupted; no new cube was written" in capsys.readouterr().err
+    assert not (out / LOCK_NAME).exists() and not (out / "small-test.nc").exists()
