@@ -14,9 +14,9 @@ from sweep.evaluate import evaluate as _evaluate  # noqa: E402  (module sweep.ev
 from sweep.summary import render_summary, write_summary  # noqa: E402
 
 
-def run(config, workers: int | None = None, progress: bool = False):
+def run(config, workers: int | None = None, progress: bool = False, scheduler: str | None = None):
     """Evaluate ``config`` and return the labelled cube as an ``xarray.Dataset``."""
-    return build_dataset(config, _evaluate(config, workers=workers, progress=progress))
+    return build_dataset(config, _evaluate(config, workers=workers, progress=progress, scheduler=scheduler))
 
 
 __all__ = [

@@ -45,6 +45,8 @@ def _build_parser() -> argparse.ArgumentParser:
     run_parser.add_argument("config", nargs="?", help="TOML config (default: the packaged demo)")
     run_parser.add_argument("--out", type=Path, help="output folder (default: outputs/<config name>/)")
     run_parser.add_argument("--workers", type=int, default=0, help="worker threads (default: all cores)")
+    run_parser.add_argument("--scheduler", metavar="ADDRESS",
+                            help="run the finite burns on a Dask distributed cluster, e.g. tcp://host:8786")
     run_parser.add_argument("--force", action="store_true",
                             help="recompute even when the cube is up to date with the config, catalog and version")
     run_parser.add_argument("-q", "--quiet", action="store_true", help="print only where the files went")
@@ -100,7 +102,8 @@ def _run(args: argparse.Namespace) -> int:
     with output_lock(folder), _log_file(folder / "capsweep.log"):
         logging.getLogger("sweep").info("run of %s into %s", config.path, folder)
         started = time.perf_counter()
-        dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet)
+        dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet,
+                      scheduler=args.scheduler)
         elapsed = time.perf_counter() - started
         cube = _write(lambda: write_dataset(dataset, cube_path), folder)
         figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them

@@ -236,7 +236,7 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepCon
 
 
 def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = False,
-             points_per_chunk: int = 1 << 20) -> SweepArrays:
+             points_per_chunk: int = 1 << 20, scheduler: str | None = None) -> SweepArrays:
     """
     Evaluate every strategy at every grid point.
 
@@ -250,6 +250,9 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
         Show a progress bar (for terminals).
     points_per_chunk : int
         Target size of one chunk; the result does not depend on it or on ``workers``.
+    scheduler : str, optional
+        Address of a Dask distributed scheduler for the finite burns (the compute-heavy part; the
+        impulsive sweep is memory-bound and stays on local threads).
     """
     workers = workers or os.cpu_count() or 1
     out = _allocate(config)
@@ -276,7 +279,7 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     for _ in track(runner(tasks), len(work), int(np.prod(config.shape)), "sweep", progress):
         pass
     if config.thrust is not None:
-        out.finite = evaluate_finite(config, plans, workers, progress)
+        out.finite = evaluate_finite(config, plans, workers, progress, scheduler=scheduler)
     if config.plane_change is not None:
         out.plane = _evaluate_plane_change(config, plans, out)
     return out

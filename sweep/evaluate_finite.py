@@ -13,6 +13,7 @@ from __future__ import annotations
 import logging
 import os
 import shutil
+import socket
 import tempfile
 from dataclasses import dataclass
 
@@ -20,6 +21,7 @@ import numpy as np
 from joblib import Parallel, delayed
 
 from sweep.config import SweepConfig
+from sweep.errors import SweepError
 from sweep.grid import chunks
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
@@ -267,12 +269,15 @@ def _shared_folder() -> str | None:
 
 
 def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
-                    points_per_chunk: int = 1 << 14) -> FiniteArrays:
+                    points_per_chunk: int = 1 << 14, scheduler: str | None = None) -> FiniteArrays:
     """
     Run every strategy with the finite-burn model; ``plans`` are the impulsive per-body plans.
 
-    With several workers the processes write straight into memory-mapped output arrays (files
-    in a memory-backed folder where there is one, removed as soon as the workers finish).
+    With several local workers the processes write straight into memory-mapped output arrays
+    (files in a memory-backed folder where there is one, removed as soon as the workers finish).
+    With ``scheduler`` (a Dask distributed address) the chunks run on that cluster through
+    joblib's dask backend and return their arrays, placed here; chunks are the same either way,
+    so the cube is too.
     """
     layout = finite_layout(config)
     bodies = [
@@ -283,9 +288,16 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     ]
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
     work = chunks(config.shape, max(points_per_chunk // config.thrust.size, 1))
+    points = int(np.prod(config.finite_shape))
+
+    def arguments(c):
+        return (bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop], config.thrust, exhaust_speed,
+                config.arrival_mass, config.steering)
+
+    if scheduler is not None:
+        return _evaluate_on_cluster(config, bodies, layout, work, arguments, scheduler, progress)
     processes = min(workers, len(work))
-    logger.info("finite burns: %d points in %d chunks on %d processes", int(np.prod(config.finite_shape)),
-                len(work), processes)
+    logger.info("finite burns: %d points in %d chunks on %d processes", points, len(work), processes)
     folder = tempfile.mkdtemp(prefix="capsweep-", dir=_shared_folder()) if processes > 1 else None
     runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential", return_as="generator")
     try:
@@ -295,13 +307,46 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
             name: np.empty(shape, dtype) if folder is None else np.lib.format.open_memmap(
                 os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
             for name, (shape, dtype) in layout.items()})
-        tasks = (delayed(_run_and_place)(out, c, bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop],
-                                         config.thrust, exhaust_speed, config.arrival_mass, config.steering)
-                 for c in work)
-        for _ in track(runner(tasks), len(work), int(np.prod(config.finite_shape)), "finite burns", progress):
+        tasks = (delayed(_run_and_place)(out, c, *arguments(c)) for c in work)
+        for _ in track(runner(tasks), len(work), points, "finite burns", progress):
             pass
     finally:
         if folder is not None:
             shutil.rmtree(folder, ignore_errors=True)
     _crossovers(config, bodies, out, runner)
+    return out
+
+
+def _reachable(address: str) -> None:
+    """Fail fast (OSError) when nothing listens at a tcp:// scheduler address."""
+    if address.startswith("tcp://"):
+        host, _, port = address[len("tcp://"):].rpartition(":")
+        socket.create_connection((host.strip("[]"), int(port)), timeout=5).close()
+
+
+def _evaluate_on_cluster(config, bodies, layout, work, arguments, scheduler: str, progress: bool) -> FiniteArrays:
+    """The finite sweep on a Dask distributed cluster: chunks return their arrays to this process."""
+    try:
+        from distributed import Client
+        from joblib import parallel_config
+    except ImportError as err:
+        raise SweepError("--scheduler needs dask.distributed: pip install 'capsweep[cluster]'") from err
+    try:
+        _reachable(scheduler)
+        client = Client(scheduler, timeout=30)
+    except (OSError, TimeoutError, ValueError) as err:
+        raise SweepError(f"--scheduler {scheduler!r}: cannot reach the Dask scheduler ({err})") from err
+    out = FiniteArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype) in layout.items()})
+    logger.info("finite burns: %d points in %d chunks on the Dask cluster at %s",
+                int(np.prod(config.finite_shape)), len(work), scheduler)
+    try:
+        with parallel_config(backend="dask"):
+            runner = Parallel(n_jobs=-1, return_as="generator")
+            results = runner(delayed(_run_chunk)(*arguments(c)) for c in work)
+            for chunk, result in track(zip(work, results, strict=True), len(work),
+                                       int(np.prod(config.finite_shape)), "finite burns", progress):
+                _place(out, chunk, result)
+            _crossovers(config, bodies, out, runner)
+    finally:
+        client.close()
     return out

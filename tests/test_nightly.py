@@ -86,3 +86,29 @@ def test_ctrl_c_exits_cleanly_and_leaves_no_lock(config_file, tmp_path, capsys, 
     assert main(["run", str(config_file()), "--out", str(out)]) == 130
     assert "interrupted; no new cube was written" in capsys.readouterr().err
     assert not (out / LOCK_NAME).exists() and not (out / "small-test.nc").exists()
+
+
+def test_finite_burns_on_a_dask_cluster_equal_the_local_run():
+    # Independent scheduler: a distributed.LocalCluster (threads, in this process).
+    distributed = pytest.importorskip("distributed")
+    from sweep import parse_config
+    from sweep.evaluate import evaluate
+    from tests.test_evaluate import assert_same_arrays
+    from tests.test_evaluate_finite import FINITE_CONFIG
+
+    config = parse_config(FINITE_CONFIG)
+    local = evaluate(config, workers=1)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as cluster:
+        remote = evaluate(config, workers=1, scheduler=cluster.scheduler_address)
+    assert_same_arrays(local, remote)
+
+
+def test_unreachable_scheduler_is_a_clear_error(config_file, tmp_path, capsys):
+    pytest.importorskip("distributed")
+    from tests.test_evaluate_finite import FINITE_CONFIG
+
+    code = main(["run", str(config_file(FINITE_CONFIG)), "--out", str(tmp_path / "o"), "-q",
+                 "--scheduler", "tcp://127.0.0.1:9"])
+    assert code == 2
+    assert "cannot reach the Dask scheduler" in capsys.readouterr().err
