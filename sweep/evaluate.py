@@ -190,7 +190,11 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
 def estimate_bytes(config: SweepConfig) -> int:
     """Bytes of all output arrays: the memory a run needs and, uncompressed, the cube's size."""
     layout = {**_layout(config), **finite_layout(config)}
-    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout.values())
+    total = sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout.values())
+    if config.plane_change is not None:  # PlaneChangeArrays: S + 2 float64 and one int8 per point and angle
+        per_angle = int(np.prod(config.shape)) * config.plane_change.size
+        total += per_angle * (8 * (len(STRATEGIES) + 2) + 1)
+    return total
 
 
 def _allocate(config: SweepConfig) -> SweepArrays:

@@ -81,3 +81,13 @@ def test_cli_run_with_plane_change_writes_cf_cube_and_summary_section(config_fil
     assert passed and not errors, report.read_text()
     assert "With a plane change" in (out / "summary.md").read_text()
     assert (out / "plane_change.csv").stat().st_size > 0
+
+
+def test_size_estimate_counts_the_plane_change_arrays():
+    from sweep.evaluate import estimate_bytes, evaluate
+
+    config = parse_config(PLANE)
+    arrays = evaluate(config, workers=1)
+    held = sum(getattr(arrays, f).nbytes for f in vars(arrays) if isinstance(getattr(arrays, f), np.ndarray))
+    held += sum(getattr(arrays.plane, f).nbytes for f in vars(arrays.plane))
+    assert estimate_bytes(config) == held
