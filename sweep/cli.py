@@ -47,6 +47,8 @@ def _build_parser() -> argparse.ArgumentParser:
     run_parser.add_argument("--workers", type=int, default=0, help="worker threads (default: all cores)")
     run_parser.add_argument("--scheduler", metavar="ADDRESS",
                             help="run the finite burns on a Dask distributed cluster, e.g. tcp://host:8786")
+    run_parser.add_argument("--compression", type=int, default=0, choices=range(10), metavar="LEVEL",
+                            help="zlib level 1-9 for the cube, 0 for none (default 0: see the README)")
     run_parser.add_argument("--force", action="store_true",
                             help="recompute even when the cube is up to date with the config, catalog and version")
     run_parser.add_argument("-q", "--quiet", action="store_true", help="print only where the files went")
@@ -105,7 +107,7 @@ def _run(args: argparse.Namespace) -> int:
         dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet,
                       scheduler=args.scheduler)
         elapsed = time.perf_counter() - started
-        cube = _write(lambda: write_dataset(dataset, cube_path), folder)
+        cube = _write(lambda: write_dataset(dataset, cube_path, args.compression), folder)
         figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
         files = _write(lambda: write_summary(dataset, folder), folder)
     points = int(dataset["best_strategy"].size)

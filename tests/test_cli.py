@@ -122,3 +122,22 @@ def test_version(capsys):
     with pytest.raises(SystemExit, match="0"):
         main(["--version"])
     assert __version__ in capsys.readouterr().out
+
+
+def test_compressed_cube_reads_back_identical_and_smaller(small_config_text, tmp_path):
+    import netCDF4
+
+    from sweep import write_dataset
+
+    # a cube large enough that compression beats the chunk bookkeeping (a 288-point cube does not)
+    cube = run(parse_config(small_config_text.replace("num = 12", "num = 400")), workers=1)
+    plain = write_dataset(cube, tmp_path / "plain.nc")
+    packed = write_dataset(cube, tmp_path / "packed.nc", compression=1)
+    assert packed.stat().st_size < plain.stat().st_size
+    with xr.open_dataset(plain) as a, xr.open_dataset(packed) as b:
+        xr.testing.assert_identical(a, b)
+    with netCDF4.Dataset(packed) as raw:
+        variable = raw["delta_v"]
+        assert variable.filters()["zlib"] and variable.chunking()[variable.dimensions.index("body")] == 1
+    with pytest.raises(ValueError, match="compression must be a zlib level 0-9, got 12"):
+        write_dataset(cube, tmp_path / "bad.nc", compression=12)
