@@ -14,9 +14,10 @@ from sweep.evaluate import evaluate as _evaluate  # noqa: E402  (module sweep.ev
 from sweep.summary import render_summary, write_summary  # noqa: E402
 
 
-def run(config, workers: int | None = None, progress: bool = False, scheduler: str | None = None):
+def run(config, workers: int | None = None, progress: bool = False, scheduler: str | None = None, checkpoint=None):
     """Evaluate ``config`` and return the labelled cube as an ``xarray.Dataset``."""
-    return build_dataset(config, _evaluate(config, workers=workers, progress=progress, scheduler=scheduler))
+    arrays = _evaluate(config, workers=workers, progress=progress, scheduler=scheduler, checkpoint=checkpoint)
+    return build_dataset(config, arrays)
 
 
 __all__ = [

@@ -7,7 +7,9 @@ No science and no validation live here. Exit 0 on success, 2 on bad input or a f
 from __future__ import annotations
 
 import argparse
+import hashlib
 import logging
+import shutil
 import sys
 import time
 from collections.abc import Sequence
@@ -98,16 +100,22 @@ def _run(args: argparse.Namespace) -> int:
     if args.workers < 0:
         raise SweepError(f"--workers must be 0 (all cores) or a positive count, got {args.workers}")
     cube_path = folder / f"{config.name}.nc"
+    key = hashlib.sha256("".join(fingerprint(config).values()).encode()).hexdigest()[:16]
+    checkpoint = folder / f".{config.name}.{key}.chunks"  # same inputs and version: same chunks
     if not args.force and _up_to_date(cube_path, config):
+        shutil.rmtree(checkpoint, ignore_errors=True)  # left by a run killed after its cube landed
         print(f"up to date: {cube_path} (config, body catalog and capsweep version unchanged; --force recomputes)")
         return 0
     with output_lock(folder), _log_file(folder / "capsweep.log"):
         logging.getLogger("sweep").info("run of %s into %s", config.path, folder)
+        if args.force:
+            shutil.rmtree(checkpoint, ignore_errors=True)
         started = time.perf_counter()
         dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet,
-                      scheduler=args.scheduler)
+                      scheduler=args.scheduler, checkpoint=None if args.scheduler else checkpoint)
         elapsed = time.perf_counter() - started
         cube = _write(lambda: write_dataset(dataset, cube_path, args.compression), folder)
+        shutil.rmtree(checkpoint, ignore_errors=True)  # the cube has landed
         figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
         files = _write(lambda: write_summary(dataset, folder), folder)
     points = int(dataset["best_strategy"].size)
@@ -303,7 +311,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 2
     except KeyboardInterrupt:
         print("capsweep: interrupted; no new cube was written and earlier outputs are untouched; run the same "
-              "command again to start over", file=sys.stderr)
+              "command again to resume (finished finite-burn chunks are kept)", file=sys.stderr)
         return 130
     except BrokenPipeError:  # output piped into a reader that closed early, e.g. `| head`
         sys.stderr.close()

@@ -240,7 +240,8 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepCon
 
 
 def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = False,
-             points_per_chunk: int = 1 << 20, scheduler: str | None = None) -> SweepArrays:
+             points_per_chunk: int = 1 << 20, scheduler: str | None = None,
+             checkpoint=None) -> SweepArrays:
     """
     Evaluate every strategy at every grid point.
 
@@ -257,6 +258,9 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     scheduler : str, optional
         Address of a Dask distributed scheduler for the finite burns (the compute-heavy part; the
         impulsive sweep is memory-bound and stays on local threads).
+    checkpoint : Path, optional
+        Folder where finished finite-burn chunks are saved and from which a killed run resumes
+        (the impulsive sweep is cheaper to recompute than to read back).
     """
     workers = workers or os.cpu_count() or 1
     out = _allocate(config)
@@ -283,7 +287,7 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     for _ in track(runner(tasks), len(work), int(np.prod(config.shape)), "sweep", progress):
         pass
     if config.thrust is not None:
-        out.finite = evaluate_finite(config, plans, workers, progress, scheduler=scheduler)
+        out.finite = evaluate_finite(config, plans, workers, progress, scheduler=scheduler, checkpoint=checkpoint)
     if config.plane_change is not None:
         out.plane = _evaluate_plane_change(config, plans, out)
     return out

@@ -16,6 +16,7 @@ import shutil
 import socket
 import tempfile
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 from joblib import Parallel, delayed
@@ -263,13 +264,49 @@ def _run_and_place(out: FiniteArrays, chunk, *args) -> None:
     _place(out, chunk, _run_chunk(*args))
 
 
+_CHUNK_NAMES = ("finite_delta_v", "finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass",
+                "reached_periapsis_altitude", "reached_apoapsis_altitude", "finite_propellant_mass",
+                "finite_time_to_orbit", "finite_status", "finite_best_strategy", "finite_saving_over_direct")
+
+
+def _take(out: FiniteArrays, chunk) -> dict[str, np.ndarray]:
+    """One chunk's arrays, read back from the full output (the inverse of :func:`_place`)."""
+    speeds = slice(chunk.v_inf_start, chunk.v_inf_stop)
+    result = {}
+    for name in _CHUNK_NAMES:
+        values = getattr(out, name)
+        if name in ("finite_best_strategy", "finite_saving_over_direct"):
+            result[name] = np.array(values[chunk.body, speeds])
+        elif values.ndim == 7:
+            result[name] = np.array(values[:, :, chunk.body, speeds])
+        else:
+            result[name] = np.array(values[:, chunk.body, speeds])
+    return result
+
+
+def _checkpoint_file(folder: Path, index: int) -> Path:
+    return folder / f"chunk-{index:06d}.npz"
+
+
+def _save_checkpoint(folder: Path, index: int, result: dict[str, np.ndarray]) -> None:
+    """Write one finished chunk atomically (temporary name, fsync, rename)."""
+    final = _checkpoint_file(folder, index)
+    temporary = final.with_suffix(".part")
+    with open(temporary, "wb") as stream:
+        np.savez(stream, **result)
+        stream.flush()
+        os.fsync(stream.fileno())
+    os.replace(temporary, final)
+
+
 def _shared_folder() -> str | None:
     """A memory-backed folder for the workers' shared output, where the system has one."""
     return "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
 
 
 def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
-                    points_per_chunk: int = 1 << 14, scheduler: str | None = None) -> FiniteArrays:
+                    points_per_chunk: int = 1 << 14, scheduler: str | None = None,
+                    checkpoint: Path | None = None) -> FiniteArrays:
     """
     Run every strategy with the finite-burn model; ``plans`` are the impulsive per-body plans.
 
@@ -278,6 +315,10 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     With ``scheduler`` (a Dask distributed address) the chunks run on that cluster through
     joblib's dask backend and return their arrays, placed here; chunks are the same either way,
     so the cube is too.
+
+    With ``checkpoint`` (a folder) every finished chunk is saved there as it completes, and
+    chunks already saved there (by a run that was killed) are loaded instead of recomputed: the
+    result is the same array for array. The folder is the caller's to remove once the cube lands.
     """
     layout = finite_layout(config)
     bodies = [
@@ -296,7 +337,14 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
 
     if scheduler is not None:
         return _evaluate_on_cluster(config, bodies, layout, work, arguments, scheduler, progress)
-    processes = min(workers, len(work))
+    done = set()
+    if checkpoint is not None:
+        checkpoint.mkdir(parents=True, exist_ok=True)
+        done = {i for i in range(len(work)) if _checkpoint_file(checkpoint, i).is_file()}
+        if done:
+            logger.info("resuming: %d of %d finite-burn chunks already done in %s", len(done), len(work), checkpoint)
+    todo = [i for i in range(len(work)) if i not in done]
+    processes = max(1, min(workers, len(todo)))
     logger.info("finite burns: %d points in %d chunks on %d processes", points, len(work), processes)
     folder = tempfile.mkdtemp(prefix="capsweep-", dir=_shared_folder()) if processes > 1 else None
     runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential", return_as="generator")
@@ -307,9 +355,14 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
             name: np.empty(shape, dtype) if folder is None else np.lib.format.open_memmap(
                 os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
             for name, (shape, dtype) in layout.items()})
-        tasks = (delayed(_run_and_place)(out, c, *arguments(c)) for c in work)
-        for _ in track(runner(tasks), len(work), points, "finite burns", progress):
-            pass
+        for i in done:
+            with np.load(_checkpoint_file(checkpoint, i)) as saved:
+                _place(out, work[i], {name: saved[name] for name in saved.files})
+        tasks = (delayed(_run_and_place)(out, work[i], *arguments(work[i])) for i in todo)
+        for i, _ in zip(todo, track(runner(tasks), len(todo), points * len(todo) // max(len(work), 1),
+                                    "finite burns", progress), strict=True):
+            if checkpoint is not None:
+                _save_checkpoint(checkpoint, i, _take(out, work[i]))
     finally:
         if folder is not None:
             shutil.rmtree(folder, ignore_errors=True)

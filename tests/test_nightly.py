@@ -112,3 +112,65 @@ def test_unreachable_scheduler_is_a_clear_error(config_file, tmp_path, capsys):
                  "--scheduler", "tcp://127.0.0.1:9"])
     assert code == 2
     assert "cannot reach the Dask scheduler" in capsys.readouterr().err
+
+
+RESUME = """
+# Test input of our own: a finite sweep long enough (a few seconds) to kill in the middle.
+name = "resume-test"
+[grid]
+bodies = ["mars", "moon"]
+v_inf = { start = 0.5, stop = 6.0, num = 48 }
+target_altitude = [400.0, 2000.0, 5000.0]
+periapsis_altitude = [250.0, 1000.0, 3000.0]
+thrust_to_weight = [0.1, 0.3, 1.0, 3.0]
+[spacecraft]
+specific_impulse = 320.0
+arrival_mass = 1000.0
+"""
+
+
+def test_resumed_chunks_give_the_same_arrays(tmp_path):
+    # In process: a run that saved some chunks, then a run that loads them, equal a fresh run.
+    import shutil
+
+    from sweep import parse_config
+    from sweep.evaluate import plan_body
+    from sweep.evaluate_finite import evaluate_finite
+    from tests.test_evaluate import assert_same_arrays
+
+    config = parse_config(RESUME)
+    plans = [plan_body(body, config) for body in config.bodies]
+    fresh = evaluate_finite(config, plans, 1, points_per_chunk=256)
+    checkpoint = tmp_path / "chunks"
+    evaluate_finite(config, plans, 1, points_per_chunk=256, checkpoint=checkpoint)
+    saved = sorted(checkpoint.glob("chunk-*.npz"))
+    assert len(saved) > 4
+    for path in saved[::2]:  # pretend half of them never finished
+        path.unlink()
+    assert_same_arrays(fresh, evaluate_finite(config, plans, 2, points_per_chunk=256, checkpoint=checkpoint))
+    shutil.rmtree(checkpoint)
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_kill_9_then_rerun_gives_the_uninterrupted_cube(tmp_path, seed):
+    import random
+    import time
+
+    import xarray as xr
+
+    config = tmp_path / "resume.toml"
+    config.write_text(RESUME, encoding="utf-8")
+    reference = tmp_path / "reference"
+    assert main(["run", str(config), "--out", str(reference), "-q"]) == 0
+    out = tmp_path / "killed"
+    command = [sys.executable, "-m", "sweep", "run", str(config), "--out", str(out), "-q"]
+    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    time.sleep(random.Random(seed).uniform(0.8, 2.0))  # somewhere in the sweep (seeded)
+    process.kill()  # SIGKILL: no cleanup at all
+    process.wait()
+    assert main(["run", str(config), "--out", str(out), "-q"]) == 0  # takes the stale lock over, resumes
+    with xr.open_dataset(reference / "resume-test.nc") as a, xr.open_dataset(out / "resume-test.nc") as b:
+        a.attrs.pop("history")
+        b.attrs.pop("history")
+        xr.testing.assert_identical(a, b)
+    assert not list(out.glob(".resume-test.*.chunks"))  # checkpoints go once the cube lands
