@@ -17,7 +17,15 @@ from sweep.config import SweepConfig
 from sweep.evaluate import SweepArrays
 from sweep.grid import DIMENSIONS
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import CHALLENGERS, NO_STRATEGY, STATUSES, STRATEGIES, strategy_names
+from sweep.strategies import (
+    CHALLENGERS,
+    CROSSOVER_VARIABLES,
+    FINITE_CROSSOVER_VARIABLES,
+    NO_STRATEGY,
+    STATUSES,
+    STRATEGIES,
+    strategy_names,
+)
 
 __all__ = ["CAUTION", "REFERENCES", "build_dataset", "fingerprint", "open_cube", "write_dataset"]
 
@@ -115,7 +123,7 @@ def _finite_variables(config: SweepConfig, finite, names: list[str]) -> tuple[di
     v_min, v_max = float(config.v_inf.min()), float(config.v_inf.max())
     for index, strategy in enumerate(CHALLENGERS):
         challenger = names[strategy]
-        name = {"two_burn": "finite_crossover_v_inf", "three_burn": "finite_three_burn_crossover_v_inf"}[challenger]
+        name = FINITE_CROSSOVER_VARIABLES[challenger]
         data[name] = (("body", "target_altitude", "periapsis_altitude", "thrust"), finite.finite_crossover_v_inf[index],
                       _attrs("km s-1", f"arrival speed at which {challenger} and direct need the same finite-burn "
                              "delta-v", valid_min=v_min, valid_max=v_max,
@@ -190,10 +198,9 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
             comment="NaN where three_burn is infeasible")),
     }
     low, high = config.crossover_range
-    variable_of = {"two_burn": "crossover_v_inf", "three_burn": "three_burn_crossover_v_inf"}
     for index, strategy in enumerate(CHALLENGERS):
         challenger = names[strategy]
-        name = variable_of[challenger]
+        name = CROSSOVER_VARIABLES[challenger]
         data_vars[name] = (("body", "target_altitude", "periapsis_altitude"), arrays.crossover_v_inf[index], _attrs(
             "km s-1", f"arrival speed at which {challenger} and direct need the same delta-v",
             valid_min=low, valid_max=high,

@@ -36,6 +36,8 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 from matplotlib.ticker import FixedLocator, FuncFormatter, LogLocator, MaxNLocator, NullLocator
 
+from sweep.strategies import CROSSOVER_VARIABLES, FINITE_CROSSOVER_VARIABLES, cube_labels
+
 __all__ = ["DPI", "STRATEGY_COLOURS", "draw_figure", "figure_files", "fill_colour", "write_figures"]
 
 DPI = 120
@@ -57,9 +59,6 @@ _SPARE_COLOURS = (_OKABE_ITO["reddish_purple"], _OKABE_ITO["sky_blue"], _OKABE_I
 NONE_COLOUR = "#B4B4B4"  # no feasible strategy: neutral grey, darker than every fill tint below
 _TINT = 0.55  # map fills: this share of the strategy colour, the rest white, so lines and labels on top read
 _CONTOUR_COLOUR = "#262626"
-_CROSSOVER_VARIABLES = {"two_burn": "crossover_v_inf", "three_burn": "three_burn_crossover_v_inf"}
-_FINITE_CROSSOVER_VARIABLES = {"two_burn": "finite_crossover_v_inf",
-                               "three_burn": "finite_three_burn_crossover_v_inf"}
 _CROSSOVER_STYLE = {"two_burn": ("--", "o"), "three_burn": (":", "s")}
 _V_INF_LABEL = "arrival speed $v_\\infty$, km/s"
 _TARGET_LABEL = "target orbit altitude, km"
@@ -76,13 +75,9 @@ def _safe(name: str) -> str:
     return re.sub(r"[^a-z0-9._-]+", "_", name.lower()) or "body"
 
 
-def _labels(dataset: xr.Dataset) -> tuple[list[str], list[str]]:
-    return ([str(n) for n in dataset["body_name"].values], [str(n) for n in dataset["strategy_name"].values])
-
-
 def _figures(dataset: xr.Dataset) -> list[tuple[str, int, str, str]]:
     """(kind, body index, file name, title) of every figure, in order."""
-    bodies, _ = _labels(dataset)
+    bodies, _ = cube_labels(dataset)
     kinds = (["winner", "saving"]
              + (["finite_winner", "finite_crossover"] if "finite_best_strategy" in dataset else [])
              + (["plane_change"] if "plane_change_best_strategy" in dataset else []))
@@ -106,7 +101,7 @@ def figure_files(dataset: xr.Dataset) -> list[tuple[str, str, str]]:
 
     Read from the cube's labels only, so the summary can link the files without drawing them.
     """
-    bodies, _ = _labels(dataset)
+    bodies, _ = cube_labels(dataset)
     return [(bodies[b], file_name, title) for _, b, file_name, title in _figures(dataset)]
 
 
@@ -340,7 +335,7 @@ def _crossover_names(dataset: xr.Dataset, names: list[str], variables: dict[str,
 
 
 def _winner_figure(dataset: xr.Dataset, b: int) -> Figure:
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     periapses = dataset["periapsis_altitude"].values
     best = dataset["best_strategy"].values[b]  # (V, T, P)
     saving = dataset["saving_over_direct"].values[b]
@@ -368,19 +363,19 @@ def _winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     rows = -(-len(shown) // columns)
     figure = _new_figure(3.7 * columns + 0.9, 2.75 * rows + 1.1, _title(bodies[b], "winner"), f"{which}; {CAPTION}")
     geometry = _MapAxes(dataset["v_inf"].values, targets, names)
-    crossing = _crossover_names(dataset, names, _CROSSOVER_VARIABLES)
+    crossing = _crossover_names(dataset, names, CROSSOVER_VARIABLES)
     contoured = False
     for ax, p in zip(_panel_grid(figure, len(shown), columns, _target_label(dataset)), shown, strict=True):
         geometry.draw(ax, best[:, :, p])
         contoured |= geometry.contours(ax, saving[:, :, p], levels)
-        geometry.crossovers(ax, {n: dataset[_CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
+        geometry.crossovers(ax, {n: dataset[CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
         ax.set_title(f"periapsis {_km(periapses[p])}", fontsize=9.5)
     geometry.legend(figure, crossing, contours=contoured)
     return figure
 
 
 def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     periapses = dataset["periapsis_altitude"].values
     thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
     candidates = _challenger_periapses(dataset["status"].values[:, b], names)
@@ -397,8 +392,8 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
                          f"{which}; grey: no strategy can be flown (see finite_status in the cube); {CAPTION}, "
                          "constant-thrust burns")
     geometry = _MapAxes(dataset["v_inf"].values, dataset["target_altitude"].values, names)
-    crossing = _crossover_names(dataset, names, _CROSSOVER_VARIABLES)
-    finite_crossing = _crossover_names(dataset, names, _FINITE_CROSSOVER_VARIABLES)
+    crossing = _crossover_names(dataset, names, CROSSOVER_VARIABLES)
+    finite_crossing = _crossover_names(dataset, names, FINITE_CROSSOVER_VARIABLES)
     labels = [f"periapsis {_km(periapses[p])}\n{_target_label(dataset)}" for p in rows]
     axes = _panel_grid(figure, len(rows) * columns, columns, labels)
     impulsive = dataset["best_strategy"].values[b]  # (V, T, P)
@@ -406,10 +401,10 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     for r, p in enumerate(rows):
         row = axes[r * columns:(r + 1) * columns]
         geometry.draw(row[0], impulsive[:, :, p])
-        geometry.crossovers(row[0], {n: dataset[_CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
+        geometry.crossovers(row[0], {n: dataset[CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
         for ax, f in zip(row[1:], levels, strict=True):
             geometry.draw(ax, best[:, :, p, f])
-            geometry.crossovers(ax, {n: dataset[_FINITE_CROSSOVER_VARIABLES[n]].values[b, :, p, f]
+            geometry.crossovers(ax, {n: dataset[FINITE_CROSSOVER_VARIABLES[n]].values[b, :, p, f]
                                      for n in finite_crossing})
         if r == 0:
             row[0].set_title("impulsive burns (reference)", fontsize=9.5)
@@ -420,7 +415,7 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
 
 
 def _plane_change_figure(dataset: xr.Dataset, b: int) -> Figure:
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     periapses = dataset["periapsis_altitude"].values
     targets = dataset["target_altitude"].values
     angles = dataset["plane_change"].values
@@ -472,7 +467,7 @@ def _target_colours(count: int) -> list:
 
 
 def _saving_figure(dataset: xr.Dataset, b: int) -> Figure:
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     v_inf, targets = dataset["v_inf"].values, dataset["target_altitude"].values
     periapses = dataset["periapsis_altitude"].values
     saving = dataset["saving_over_direct"].values[b]  # (V, T, P)
@@ -516,13 +511,13 @@ def _saving_figure(dataset: xr.Dataset, b: int) -> Figure:
 
 
 def _finite_crossover_figure(dataset: xr.Dataset, b: int) -> Figure:
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     v_inf, targets = dataset["v_inf"].values, dataset["target_altitude"].values
     periapses = dataset["periapsis_altitude"].values
     thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
     status = dataset["status"].values[:, b]
-    crossing = [n for n in _crossover_names(dataset, names, _FINITE_CROSSOVER_VARIABLES)
-                if _CROSSOVER_VARIABLES[n] in dataset]
+    crossing = [n for n in _crossover_names(dataset, names, FINITE_CROSSOVER_VARIABLES)
+                if CROSSOVER_VARIABLES[n] in dataset]
     count = max(len(crossing), 1)
     figure = _new_figure(
         4.6 * count + 0.9, 4.6, _title(bodies[b], "finite_crossover"),
@@ -548,8 +543,8 @@ def _finite_crossover_figure(dataset: xr.Dataset, b: int) -> Figure:
         highest = 0.0
         for t in plotted if name else []:
             p = below[t]
-            finite = dataset[_FINITE_CROSSOVER_VARIABLES[name]].values[b, t, p]
-            impulsive = float(dataset[_CROSSOVER_VARIABLES[name]].values[b, t, p])
+            finite = dataset[FINITE_CROSSOVER_VARIABLES[name]].values[b, t, p]
+            impulsive = float(dataset[CROSSOVER_VARIABLES[name]].values[b, t, p])
             if np.isfinite(impulsive):
                 ax.axhline(impulsive, color=colours[t], linestyle="--", linewidth=1.2, zorder=2)
                 drawn = True
@@ -626,7 +621,7 @@ def draw_figure(dataset: xr.Dataset, kind: str, body: str) -> Figure:
     ``finite_winner``, ``finite_crossover`` (these two need a thrust axis) and ``plane_change``
     (needs a plane-change axis).
     """
-    bodies, _ = _labels(dataset)
+    bodies, _ = cube_labels(dataset)
     kinds = {kind for kind, *_ in _figures(dataset)}
     if kind not in kinds:
         raise ValueError(f"unknown figure kind {kind!r} for this cube; expected one of {sorted(kinds)}")

@@ -12,7 +12,9 @@ from sweep.physics.capture import Maneuver, direct_capture, three_burn_capture, 
 
 __all__ = [
     "CHALLENGERS",
+    "CROSSOVER_VARIABLES",
     "DIRECT",
+    "FINITE_CROSSOVER_VARIABLES",
     "NO_STRATEGY",
     "THREE_BURN",
     "TWO_BURN",
@@ -21,6 +23,7 @@ __all__ = [
     "Geometry",
     "Status",
     "Strategy",
+    "cube_labels",
     "pick_best",
     "strategy_names",
 ]
@@ -107,6 +110,15 @@ DIRECT = strategy_names().index("direct")  # the reference every saving and cros
 TWO_BURN = strategy_names().index("two_burn")
 THREE_BURN = strategy_names().index("three_burn")
 CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # crossover_v_inf order
+
+# Cube variables holding each challenger's equal-cost arrival speed against direct.
+CROSSOVER_VARIABLES = {"two_burn": "crossover_v_inf", "three_burn": "three_burn_crossover_v_inf"}
+FINITE_CROSSOVER_VARIABLES = {"two_burn": "finite_crossover_v_inf", "three_burn": "finite_three_burn_crossover_v_inf"}
+
+
+def cube_labels(dataset) -> tuple[list[str], list[str]]:
+    """Body and strategy names of a cube, in dimension order (from its label variables)."""
+    return ([str(n) for n in dataset["body_name"].values], [str(n) for n in dataset["strategy_name"].values])
 
 
 class Status(NamedTuple):

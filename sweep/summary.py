@@ -12,14 +12,12 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from sweep.strategies import CROSSOVER_VARIABLES, cube_labels
+
 __all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
 
 _MAX_ROWS = 12  # periapsis rows shown per Markdown table; the CSV has them all
 _DAY = 86400.0  # s
-
-
-def _labels(dataset: xr.Dataset) -> tuple[list[str], list[str]]:
-    return ([str(n) for n in dataset["body_name"].values], [str(n) for n in dataset["strategy_name"].values])
 
 
 def _win_runs(best: np.ndarray, v_inf: np.ndarray, names: list[str]) -> list[tuple[str, float, float]]:
@@ -45,7 +43,7 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
         ``crossover``: equal-cost arrival speeds; ``shares``: the share of feasible grid
         points each strategy wins and its largest saving over direct, with where it occurs.
     """
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     v_inf = dataset["v_inf"].values
     best = dataset["best_strategy"].values
     saving = dataset["saving_over_direct"].values
@@ -96,7 +94,7 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
 
 def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
     """Per body, target and plane change: share won, median cost of the turn, median two_burn split."""
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     totals = dataset["plane_change_delta_v"].values  # (S, B, V, T, P, I)
     best = dataset["plane_change_best_strategy"].values  # (B, V, T, P, I)
     coplanar = np.fmin.reduce(dataset["delta_v"].values, axis=0)  # (B, V, T, P): least coplanar cost
@@ -124,7 +122,7 @@ def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
 
 def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     """Finite-burn crossovers per periapsis and thrust; wins and gravity losses per thrust."""
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     meanings = dataset["finite_status"].attrs["flag_meanings"].split()
     engine_codes = [meanings.index(m) for m in ("engine_cannot_capture", "propellant_exhausted", "surface_impact")]
     loss = (dataset["finite_delta_v"] - dataset["delta_v"]).values  # (S, B, V, T, P, F)
@@ -197,7 +195,7 @@ def _status_lines(dataset: xr.Dataset, b: int, names: list[str]) -> list[str]:
 def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, shares: pd.DataFrame) -> str:
     """One plain-language sentence pair for a body and target altitude."""
     periapses = dataset["periapsis_altitude"].values
-    two_burn = _labels(dataset)[1].index("two_burn")
+    two_burn = cube_labels(dataset)[1].index("two_burn")
     feasible = np.flatnonzero(dataset["status"].values[two_burn, b, 0, t] == 0)
     here = shares[(shares.body == body) & (shares.target_altitude_km == target)].set_index("strategy")
     if here["points_won"].sum() == 0:
@@ -206,10 +204,10 @@ def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, share
     lower = [p for p in feasible if periapses[p] < target]
     if lower:
         p = lower[0]
-        index = {name: i for i, name in enumerate(_labels(dataset)[1])}
+        index = {name: i for i, name in enumerate(cube_labels(dataset)[1])}
         delta_v = dataset["delta_v"].values
         phrases = []
-        for variable, name in (("crossover_v_inf", "two_burn"), ("three_burn_crossover_v_inf", "three_burn")):
+        for name, variable in CROSSOVER_VARIABLES.items():
             cross = dataset[variable].values[b, t, p]
             attrs = dataset[variable].attrs
             searched = f"{attrs.get('valid_min')} to {attrs.get('valid_max')} km/s"
@@ -240,7 +238,7 @@ def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, share
 def answers(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) -> dict[str, list[str]]:
     """Plain-language answer per body: one sentence group per target altitude."""
     tables = tables or summary_tables(dataset)
-    bodies, _ = _labels(dataset)
+    bodies, _ = cube_labels(dataset)
     targets = dataset["target_altitude"].values
     return {
         body: [_answer(body, target, dataset, b, t, tables["shares"]) for t, target in enumerate(targets)]
@@ -250,7 +248,7 @@ def answers(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) 
 
 def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int, t: int) -> list[str]:
     """How the answer moves with thrust: crossovers at the lowest feasible periapsis, wins, losses."""
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     body, target = bodies[b], float(dataset["target_altitude"].values[t])
     periapses = dataset["periapsis_altitude"].values
     two_burn = names.index("two_burn")
@@ -312,7 +310,7 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     section; none by default.
     """
     tables = tables or summary_tables(dataset)
-    bodies, names = _labels(dataset)
+    bodies, names = cube_labels(dataset)
     sentences = answers(dataset, tables)
     v_inf = dataset["v_inf"].values
     periapses = dataset["periapsis_altitude"].values
