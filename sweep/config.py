@@ -19,7 +19,7 @@ from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag, Validatio
 
 from sweep.catalog import Body, catalog, resolve_body
 from sweep.errors import CatalogError, ConfigError
-from sweep.physics.conics import hohmann_excess_speeds
+from sweep.physics.conics import hohmann_excess_speeds, semi_major_axis_from_period
 from sweep.physics.rocket import STANDARD_GRAVITY
 
 __all__ = [
@@ -354,7 +354,7 @@ def _check_target_orbit(orbit: TargetOrbit, bodies, target_altitudes: np.ndarray
         )
     if orbit.period is not None:
         for body in bodies:
-            semi_major_axis = np.cbrt(body.gm * (orbit.period * 3600.0 / (2 * np.pi)) ** 2)
+            semi_major_axis = semi_major_axis_from_period(body.gm, orbit.period * 3600.0)
             periapsis = body.radius + target_altitudes.max() * 1e3
             if 2 * semi_major_axis < 2 * periapsis:
                 raise ConfigError(

@@ -28,7 +28,7 @@ from sweep.physics.capture import (
     time_limited_apoapsis,
     two_burn_capture,
 )
-from sweep.physics.conics import hyperbolic_periapsis_speed
+from sweep.physics.conics import hyperbolic_periapsis_speed, semi_major_axis_from_period
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.progress import track
 from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
@@ -110,7 +110,7 @@ def target_apoapsis_radius(body, config: SweepConfig, target_radius: np.ndarray)
     if config.target_apoapsis_altitude is not None:
         return np.full_like(target_radius, body.radius + config.target_apoapsis_altitude * _KM)
     if config.target_period is not None:
-        semi_major_axis = np.cbrt(body.gm * (config.target_period / (2.0 * np.pi)) ** 2)  # Kepler's third law
+        semi_major_axis = semi_major_axis_from_period(body.gm, config.target_period)
         return 2.0 * semi_major_axis - target_radius
     return None
 

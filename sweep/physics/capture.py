@@ -36,6 +36,7 @@ from sweep.physics.conics import (
     circular_speed,
     half_period,
     hyperbolic_periapsis_speed,
+    semi_major_axis_from_period,
 )
 
 __all__ = [
@@ -470,7 +471,7 @@ def time_limited_apoapsis(
         return three_burn_capture(0.0, gm, periapsis_radius, target_radius, apoapsis).time
 
     lower = np.maximum(periapsis_radius, far)
-    upper = np.maximum(2.0 * np.cbrt(gm * (max_time / (2.0 * np.pi)) ** 2), lower)
+    upper = np.maximum(2.0 * semi_major_axis_from_period(gm, max_time), lower)
     low, high = np.log(lower), np.log(upper)
     for _ in range(_BISECTION_STEPS):
         middle = 0.5 * (low + high)

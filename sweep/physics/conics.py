@@ -26,6 +26,7 @@ __all__ = [
     "half_period",
     "hill_radius",
     "hohmann_excess_speeds",
+    "semi_major_axis_from_period",
     "hyperbolic_periapsis_speed",
     "sphere_of_influence_radius",
 ]
@@ -154,6 +155,30 @@ def half_period(gm: ArrayLike, radius: ArrayLike, other_apsis: ArrayLike) -> np.
     """
     semi_major_axis = 0.5 * (_positive(radius) + _positive(other_apsis))
     return np.pi * np.sqrt(semi_major_axis**3 / gm)
+
+
+def semi_major_axis_from_period(gm: ArrayLike, period: ArrayLike) -> np.ndarray:
+    r"""
+    Semi-major axis of the orbit with a given period.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    period : numeric
+        Orbital period. [s]
+
+    Returns
+    -------
+    semi_major_axis : numeric
+        :math:`a = (\mu (T / 2\pi)^2)^{1/3}`, Kepler's third law ([1]_ Ch. 2). [m]
+
+    Examples
+    --------
+    >>> round(float(semi_major_axis_from_period(42830e9, 7 * 3600.0)) / 1e3)
+    8832
+    """
+    return np.cbrt(np.asarray(gm) * (np.asarray(period) / (2.0 * np.pi)) ** 2)
 
 
 def sphere_of_influence_radius(
