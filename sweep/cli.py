@@ -18,7 +18,7 @@ from pathlib import Path
 
 import xarray as xr
 
-from sweep import __version__, run
+from sweep import __version__, run_to_file
 from sweep.catalog import catalog
 from sweep.config import load_config
 from sweep.dataset import fingerprint, write_dataset
@@ -111,20 +111,24 @@ def _run(args: argparse.Namespace) -> int:
         if args.force:
             shutil.rmtree(checkpoint, ignore_errors=True)
         started = time.perf_counter()
-        dataset = run(config, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet,
-                      scheduler=args.scheduler, checkpoint=None if args.scheduler else checkpoint)
+        # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
+        cube = _write(lambda: run_to_file(
+            config, cube_path, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet,
+            scheduler=args.scheduler, checkpoint=None if args.scheduler else checkpoint,
+            compression=args.compression), folder)
         elapsed = time.perf_counter() - started
-        cube = _write(lambda: write_dataset(dataset, cube_path, args.compression), folder)
         shutil.rmtree(checkpoint, ignore_errors=True)  # the cube has landed
-        figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
-        files = _write(lambda: write_summary(dataset, folder), folder)
-    points = int(dataset["best_strategy"].size)
-    print(f"cube: {cube}")
-    print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
-    print(_figures_line(figures, folder))
-    if not args.quiet:
-        print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated in {elapsed:.2f} s")
-        print(_short_answer(dataset))
+        with _open_cube(cube) as dataset:
+            figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
+            files = _write(lambda: write_summary(dataset, folder), folder)
+            print(f"cube: {cube}")
+            print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
+            print(_figures_line(figures, folder))
+            if not args.quiet:
+                points = int(dataset["best_strategy"].size)
+                print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated and written in "
+                      f"{elapsed:.2f} s")
+                print(_short_answer(dataset))
     return 0
 
 
@@ -300,6 +304,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     level = logging.DEBUG if verbose > 1 else logging.INFO if verbose or not (quiet or sys.stderr.isatty()) \
         else logging.WARNING
     logging.basicConfig(level=level, format="capsweep: %(message)s")
+    for handler in logging.getLogger().handlers:  # the file log may lower logger levels; the console keeps its own
+        handler.setLevel(level)
     handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot,
                 "universal": _universal, "compare": _compare}
     try:

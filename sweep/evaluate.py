@@ -10,6 +10,9 @@ from __future__ import annotations
 
 import logging
 import os
+from collections import deque
+from collections.abc import Iterator
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -33,12 +36,18 @@ from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.progress import track
 from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
 
-__all__ = ["BodyPlan", "SweepArrays", "estimate_bytes", "evaluate", "plan_body"]
+__all__ = ["STREAMED", "STREAM_CHUNK_POINTS", "BodyPlan", "SweepArrays", "add_placeholders", "estimate_bytes",
+           "evaluate", "plan_body", "prepare", "sweep_chunks"]
 
 logger = logging.getLogger(__name__)
 
 _KM = 1.0e3  # m per km
 _CODE = {status.name: code for code, status in enumerate(STATUSES)}
+# The per-point impulsive arrays (v_inf axis): a streamed run writes them chunk by chunk and never
+# holds them whole. With a plane_change axis, ``SweepArrays.plane`` is streamed too.
+STREAMED = ("delta_v", "burn_delta_v", "propellant_mass", "time_to_orbit", "status", "best_strategy",
+            "saving_over_direct", "propellant_saving", "intermediate_apoapsis_altitude")
+STREAM_CHUNK_POINTS = 1 << 19  # grid points per streamed chunk: about 90 MB of results each
 
 
 @dataclass(frozen=True)
@@ -54,7 +63,10 @@ class BodyPlan:
 
 @dataclass
 class SweepArrays:
-    """Plain arrays of a sweep, in cube dimension order; units as named in :mod:`sweep.dataset`."""
+    """
+    Plain arrays of a sweep, in cube dimension order; units as named in :mod:`sweep.dataset`.
+    One chunk's arrays (:func:`sweep_chunks`) hold only the :data:`STREAMED` fields and ``plane``.
+    """
 
     delta_v: np.ndarray
     burn_delta_v: np.ndarray
@@ -160,11 +172,15 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     return BodyPlan(geometry, status, np.stack(times), bound, np.stack(crossover))
 
 
-def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
-    """Shape and dtype of every output array."""
-    shape = config.shape
+def _layout(config: SweepConfig, bodies: int | None = None, speeds: int | None = None
+            ) -> dict[str, tuple[tuple[int, ...], type]]:
+    """
+    Shape and dtype of every output array; ``bodies`` and ``speeds`` override the grid's counts
+    (one chunk's per-point arrays: one body, a run of arrival speeds).
+    """
+    nbody, nspeed, ntarget, nperiapsis = config.shape
+    shape = (nbody if bodies is None else bodies, nspeed if speeds is None else speeds, ntarget, nperiapsis)
     count = len(STRATEGIES)
-    nbody, _, ntarget, nperiapsis = shape
     per_strategy = ((count, *shape), np.float64)
     per_point = (shape, np.float64)
     return {
@@ -181,29 +197,68 @@ def _layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
         "apoapsis_bound": ((nbody,), np.float64),
         "sphere_of_influence": ((nbody,), np.float64),
         "hill_radius": ((nbody,), np.float64),
-        "free_periapsis_altitude": ((nbody, shape[1], ntarget), np.float64),
-        "free_periapsis_delta_v": ((nbody, shape[1], ntarget), np.float64),
+        "free_periapsis_altitude": ((nbody, nspeed, ntarget), np.float64),
+        "free_periapsis_delta_v": ((nbody, nspeed, ntarget), np.float64),
         "target_apoapsis_altitude": ((nbody, ntarget), np.float64),
     }
 
 
+def _plane_layout(config: SweepConfig, bodies: int | None = None, speeds: int | None = None
+                  ) -> dict[str, tuple[tuple[int, ...], type]]:
+    """Shape and dtype of the plane-change arrays (empty without a plane_change axis)."""
+    if config.plane_change is None:
+        return {}
+    nbody, nspeed, ntarget, nperiapsis = config.shape
+    shape = (nbody if bodies is None else bodies, nspeed if speeds is None else speeds, ntarget, nperiapsis,
+             config.plane_change.size)
+    return {
+        "delta_v": ((len(STRATEGIES), *shape), np.float64),
+        "two_burn_first_share": (shape, np.float64),
+        "best_strategy": (shape, np.int8),
+        "saving_over_direct": (shape, np.float64),
+    }
+
+
 def estimate_bytes(config: SweepConfig) -> int:
-    """Bytes of all output arrays: the memory a run needs and, uncompressed, the cube's size."""
-    layout = {**_layout(config), **finite_layout(config)}
-    total = sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout.values())
-    if config.plane_change is not None:  # PlaneChangeArrays: S + 2 float64 and one int8 per point and angle
-        per_angle = int(np.prod(config.shape)) * config.plane_change.size
-        total += per_angle * (8 * (len(STRATEGIES) + 2) + 1)
-    return total
+    """Bytes of all output arrays: the cube's size uncompressed and the memory of an in-memory run."""
+    layout = [*_layout(config).values(), *_plane_layout(config).values(), *finite_layout(config).values()]
+    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout)
 
 
-def _allocate(config: SweepConfig) -> SweepArrays:
-    return SweepArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype) in _layout(config).items()})
+def _allocate(config: SweepConfig, names, bodies: int | None = None, speeds: int | None = None) -> SweepArrays:
+    """
+    The arrays ``names`` allocated (for the grid, or one chunk), with the plane-change arrays if
+    ``names`` are the streamed ones and the grid has that axis; the other fields are left None.
+    """
+    arrays = SweepArrays(**{name: np.empty(shape, dtype) if name in names else None
+                            for name, (shape, dtype) in _layout(config, bodies, speeds).items()})
+    if names == STREAMED and config.plane_change is not None:
+        arrays.plane = PlaneChangeArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype)
+                                            in _plane_layout(config, bodies, speeds).items()})
+    return arrays
 
 
-def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepConfig, out: SweepArrays) -> None:
-    b, speeds = chunk.body, slice(chunk.v_inf_start, chunk.v_inf_stop)
-    speed = v_inf[speeds, None, None] * _KM
+def add_placeholders(config: SweepConfig, arrays: SweepArrays) -> SweepArrays:
+    """
+    Fill the per-point fields of :func:`prepare`'s arrays with zero-stride views of the right
+    shape and dtype (one element of memory each): enough to label the cube whose per-point
+    values then arrive chunk by chunk from :func:`sweep_chunks`.
+    """
+    for name in STREAMED:
+        shape, dtype = _layout(config)[name]
+        setattr(arrays, name, np.broadcast_to(np.zeros((), dtype), shape))
+    if config.plane_change is not None:
+        arrays.plane = PlaneChangeArrays(**{name: np.broadcast_to(np.zeros((), dtype), shape)
+                                            for name, (shape, dtype) in _plane_layout(config).items()})
+    return arrays
+
+
+def _run_chunk(chunk: Chunk, plan: BodyPlan, config: SweepConfig, out: SweepArrays, b: int, speeds: slice) -> None:
+    """
+    Evaluate one chunk into ``out`` at body index ``b`` and arrival speeds ``speeds``: the grid's
+    own place for an in-memory run, (0, all) for a chunk's own arrays.
+    """
+    speed = config.v_inf[chunk.v_inf_start:chunk.v_inf_stop, None, None] * _KM
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
     for index, strategy in enumerate(STRATEGIES):
         maneuver = strategy.kernel(speed, plan.geometry)
@@ -235,15 +290,78 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, v_inf: np.ndarray, config: SweepCon
     out.propellant_saving[b, speeds] = propellant_saving
     three_burn_ok = plan.status[THREE_BURN] == 0
     out.intermediate_apoapsis_altitude[b, speeds] = np.where(
-        three_burn_ok, (plan.geometry.apoapsis_radius - config.bodies[b].radius) / _KM, np.nan
+        three_burn_ok, (plan.geometry.apoapsis_radius - config.bodies[chunk.body].radius) / _KM, np.nan
     )
+    if config.plane_change is not None:
+        _plane_change_chunk(speed[..., None], plan, config, out.plane, b, speeds)
+
+
+def _plane_change_chunk(speed, plan: BodyPlan, config: SweepConfig, out: PlaneChangeArrays, b: int,
+                        speeds: slice) -> None:
+    """
+    Every strategy with a plane change, for one chunk: ``direct`` turns with its one burn,
+    ``two_burn`` splits the turn between its burns as :func:`best_plane_change_split` finds
+    cheapest, ``three_burn`` turns with the apoapsis burn (at the apoapsis of the coplanar plan:
+    the coplanar total already falls with the apoapsis, and the turn is cheaper the higher it
+    is). Feasibility is the coplanar one. ``speed``: m/s, shape (V, 1, 1, 1).
+    """
+    angles = np.radians(config.plane_change)[None, None, None, :]
+    g = plan.geometry
+    r_p, r_t = g.periapsis_radius[..., None], g.target_radius[..., None]
+    r_a = np.asarray(g.apoapsis_radius)[..., None]
+    r_ta = None if g.target_apoapsis is None else g.target_apoapsis[..., None]
+    split = best_plane_change_split(speed, g.gm, r_p, r_t, angles, r_ta)
+    with_turn = {
+        "direct": direct_capture(speed, g.gm, r_t, angles, r_ta),
+        "two_burn": two_burn_capture(speed, g.gm, r_p, r_t, angles, split, r_ta),
+        "three_burn": three_burn_capture(speed, g.gm, r_p, r_t, r_a, angles, r_ta),
+    }
+    delta_v = out.delta_v[:, b, speeds]
+    for index, strategy in enumerate(STRATEGIES):
+        total = np.broadcast_to(sum(with_turn[strategy.name].burns), delta_v.shape[1:])
+        delta_v[index] = np.where((plan.status[index] == 0)[None, :, :, None], total, np.nan)
+    out.two_burn_first_share[b, speeds] = np.where((plan.status[TWO_BURN] == 0)[None, :, :, None],
+                                                   np.degrees(split), np.nan)
+    best, saving, _ = pick_best(delta_v, delta_v, DIRECT)
+    out.best_strategy[b, speeds] = best
+    out.saving_over_direct[b, speeds] = saving
+
+
+def prepare(config: SweepConfig, workers: int | None = None, progress: bool = False, scheduler: str | None = None,
+            checkpoint=None) -> tuple[list[BodyPlan], SweepArrays]:
+    """
+    Everything but the per-point impulsive arrays: per-body plans and constants, crossover
+    speeds, the free-periapsis reference and, with a thrust axis, the finite burns. The
+    returned arrays leave the :data:`STREAMED` fields and ``plane`` None.
+    """
+    workers = workers or os.cpu_count() or 1
+    out = _allocate(config, set(_layout(config)) - set(STREAMED))
+    threads = Parallel(n_jobs=min(workers, max(len(config.bodies), 1)), backend="threading")
+    plans = threads(delayed(plan_body)(body, config) for body in config.bodies)
+    for index, (body, plan) in enumerate(zip(config.bodies, plans, strict=True)):
+        out.crossover_v_inf[:, index] = plan.crossover / _KM
+        out.apoapsis_bound[index] = plan.apoapsis_bound / _KM
+        out.sphere_of_influence[index] = body.sphere_of_influence / _KM
+        out.hill_radius[index] = body.hill_radius / _KM
+        out.target_apoapsis_altitude[index] = (plan.geometry.target_far[:, 0] - body.radius) / _KM
+        # the target's shape (eccentricity), with the periapsis left free: (v_inf, target)
+        near, far = plan.geometry.target_radius[:, 0], plan.geometry.target_far[:, 0]
+        eccentricity = (far - near) / (far + near)
+        radius, burn = free_periapsis_capture((config.v_inf * _KM)[:, None], body.gm, eccentricity[None, :])
+        apoapsis = radius * (1 + eccentricity) / (1 - eccentricity)
+        usable = (radius >= body.radius + body.safe_periapsis_altitude) & (apoapsis <= plan.apoapsis_bound)
+        out.free_periapsis_altitude[index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
+        out.free_periapsis_delta_v[index] = np.where(usable, burn, np.nan)
+    if config.thrust is not None:
+        out.finite = evaluate_finite(config, plans, workers, progress, scheduler=scheduler, checkpoint=checkpoint)
+    return plans, out
 
 
 def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = False,
              points_per_chunk: int = 1 << 20, scheduler: str | None = None,
              checkpoint=None) -> SweepArrays:
     """
-    Evaluate every strategy at every grid point.
+    Evaluate every strategy at every grid point, all arrays in memory.
 
     Parameters
     ----------
@@ -261,66 +379,61 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     checkpoint : Path, optional
         Folder where finished finite-burn chunks are saved and from which a killed run resumes
         (the impulsive sweep is cheaper to recompute than to read back).
+
+    See Also
+    --------
+    sweep_chunks : the same per-point arrays one chunk at a time, for grids larger than memory.
     """
     workers = workers or os.cpu_count() or 1
-    out = _allocate(config)
-    threads = Parallel(n_jobs=min(workers, max(len(config.bodies), 1)), backend="threading")
-    plans = threads(delayed(plan_body)(body, config) for body in config.bodies)
-    for index, (body, plan) in enumerate(zip(config.bodies, plans, strict=True)):
-        out.crossover_v_inf[:, index] = plan.crossover / _KM
-        out.apoapsis_bound[index] = plan.apoapsis_bound / _KM
-        out.sphere_of_influence[index] = body.sphere_of_influence / _KM
-        out.hill_radius[index] = body.hill_radius / _KM
-        out.target_apoapsis_altitude[index] = (plan.geometry.target_far[:, 0] - body.radius) / _KM
-        # the target's shape (eccentricity), with the periapsis left free: (v_inf, target)
-        near, far = plan.geometry.target_radius[:, 0], plan.geometry.target_far[:, 0]
-        eccentricity = (far - near) / (far + near)
-        radius, burn = free_periapsis_capture((config.v_inf * _KM)[:, None], body.gm, eccentricity[None, :])
-        apoapsis = radius * (1 + eccentricity) / (1 - eccentricity)
-        usable = (radius >= body.radius + body.safe_periapsis_altitude) & (apoapsis <= plan.apoapsis_bound)
-        out.free_periapsis_altitude[index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
-        out.free_periapsis_delta_v[index] = np.where(usable, burn, np.nan)
+    plans, out = prepare(config, workers, progress, scheduler, checkpoint)
+    full = _allocate(config, STREAMED)
+    for name in STREAMED:
+        setattr(out, name, getattr(full, name))
+    out.plane = full.plane
     work = chunks(config.shape, points_per_chunk)
     logger.info("evaluating %d points in %d chunks on %d threads", int(np.prod(config.shape)), len(work), workers)
-    tasks = (delayed(_run_chunk)(chunk, plans[chunk.body], config.v_inf, config, out) for chunk in work)
+    tasks = (delayed(_run_chunk)(chunk, plans[chunk.body], config, out, chunk.body,
+                                 slice(chunk.v_inf_start, chunk.v_inf_stop)) for chunk in work)
     runner = Parallel(n_jobs=min(workers, len(work)), backend="threading", return_as="generator")
     for _ in track(runner(tasks), len(work), int(np.prod(config.shape)), "sweep", progress):
         pass
-    if config.thrust is not None:
-        out.finite = evaluate_finite(config, plans, workers, progress, scheduler=scheduler, checkpoint=checkpoint)
-    if config.plane_change is not None:
-        out.plane = _evaluate_plane_change(config, plans, out)
     return out
 
 
-def _evaluate_plane_change(config: SweepConfig, plans, out: SweepArrays) -> PlaneChangeArrays:
+def sweep_chunks(config: SweepConfig, plans: list[BodyPlan], workers: int | None = None, progress: bool = False,
+                 points_per_chunk: int = STREAM_CHUNK_POINTS) -> Iterator[tuple[Chunk, SweepArrays]]:
     """
-    Every strategy with a plane change, per body: ``direct`` turns with its one burn, ``two_burn``
-    splits the turn between its burns as :func:`best_plane_change_split` finds cheapest,
-    ``three_burn`` turns with the apoapsis burn (at the apoapsis of the coplanar plan: the
-    coplanar total already falls with the apoapsis, and the turn is cheaper the higher it is).
-    Feasibility is the coplanar one.
+    Yield every chunk's per-point arrays, in grid order, as :class:`SweepArrays` with a body axis
+    of length 1 (the :data:`STREAMED` fields and ``plane``; the rest None).
+
+    Chunks run on ``workers`` threads, at most ``workers + 1`` of them computed ahead of the
+    consumer: memory stays a few chunks whatever the grid, and a slow consumer (the file
+    writer) holds the threads back rather than letting results pile up. The values are those of
+    :func:`evaluate`, bit for bit.
     """
-    angles = np.radians(config.plane_change)[None, None, None, :]
-    nbody, nspeed, ntarget, nperiapsis = config.shape
-    shape = (nbody, nspeed, ntarget, nperiapsis, angles.size)
-    delta_v = np.empty((len(STRATEGIES), *shape))
-    share = np.empty(shape)
-    speed = (config.v_inf * _KM)[:, None, None, None]
-    for b, plan in enumerate(plans):
-        g = plan.geometry
-        r_p, r_t = g.periapsis_radius[..., None], g.target_radius[..., None]
-        r_a = np.asarray(g.apoapsis_radius)[..., None]
-        r_ta = None if g.target_apoapsis is None else g.target_apoapsis[..., None]
-        split = best_plane_change_split(speed, g.gm, r_p, r_t, angles, r_ta)
-        with_turn = {
-            "direct": direct_capture(speed, g.gm, r_t, angles, r_ta),
-            "two_burn": two_burn_capture(speed, g.gm, r_p, r_t, angles, split, r_ta),
-            "three_burn": three_burn_capture(speed, g.gm, r_p, r_t, r_a, angles, r_ta),
-        }
-        for index, strategy in enumerate(STRATEGIES):
-            total = np.broadcast_to(sum(with_turn[strategy.name].burns), shape[1:])
-            delta_v[index, b] = np.where((plan.status[index] == 0)[None, :, :, None], total, np.nan)
-        share[b] = np.where((plan.status[TWO_BURN] == 0)[None, :, :, None], np.degrees(split), np.nan)
-    best, saving, _ = pick_best(delta_v, delta_v, DIRECT)
-    return PlaneChangeArrays(delta_v, share, best, saving)
+    workers = workers or os.cpu_count() or 1
+    work = chunks(config.shape, points_per_chunk)
+    logger.info("evaluating %d points in %d chunks on %d threads, streamed", int(np.prod(config.shape)), len(work),
+                workers)
+
+    def compute(chunk: Chunk) -> tuple[Chunk, SweepArrays]:
+        count = chunk.v_inf_stop - chunk.v_inf_start
+        local = _allocate(config, STREAMED, bodies=1, speeds=count)
+        _run_chunk(chunk, plans[chunk.body], config, local, 0, slice(0, count))
+        return chunk, local
+
+    def in_order() -> Iterator[tuple[Chunk, SweepArrays]]:
+        with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="capsweep-chunk") as pool:
+            pending: deque[Future] = deque()
+            try:
+                for chunk in work:
+                    pending.append(pool.submit(compute, chunk))
+                    if len(pending) > workers:
+                        yield pending.popleft().result()
+                while pending:
+                    yield pending.popleft().result()
+            finally:
+                for future in pending:
+                    future.cancel()
+
+    yield from track(in_order(), len(work), int(np.prod(config.shape)), "sweep", progress)

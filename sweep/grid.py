@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-__all__ = ["DIMENSIONS", "Chunk", "chunks"]
+__all__ = ["DIMENSIONS", "Chunk", "chunks", "speeds_per_chunk"]
 
 # Dimension order of every per-point array (the strategy axis is prepended where present).
 DIMENSIONS = ("body", "v_inf", "target_altitude", "periapsis_altitude")
@@ -26,11 +26,16 @@ def chunks(shape: tuple[int, int, int, int], points_per_chunk: int = 1 << 20) ->
     chunk's arrays stay cache- and memory-friendly whatever the grid's size. The list is in
     grid order and depends only on the shape, never on the number of workers.
     """
-    bodies, speeds, targets, periapses = shape
-    per_speed = max(targets * periapses, 1)
-    step = max(1, points_per_chunk // per_speed)
+    bodies, speeds, _, _ = shape
+    step = speeds_per_chunk(shape, points_per_chunk)
     return [
         Chunk(body, start, min(start + step, speeds))
         for body in range(bodies)
         for start in range(0, speeds, step)
     ]
+
+
+def speeds_per_chunk(shape: tuple[int, int, int, int], points_per_chunk: int = 1 << 20) -> int:
+    """Arrival speeds in each chunk of :func:`chunks` (the last chunk of a body may hold fewer)."""
+    _, _, targets, periapses = shape
+    return max(1, points_per_chunk // max(targets * periapses, 1))

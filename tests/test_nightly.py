@@ -76,16 +76,28 @@ def test_progress_lines_and_log_file_without_a_terminal(config_file, tmp_path, c
 
 
 def test_ctrl_c_exits_cleanly_and_leaves_no_lock(config_file, tmp_path, capsys, monkeypatch):
-    import sweep.cli
+    import sweep.dataset
 
-    def interrupted(*args, **kwargs):
-        raise KeyboardInterrupt
-
-    monkeypatch.setattr(sweep.cli, "run", interrupted)
     out = tmp_path / "out"
-    assert main(["run", str(config_file()), "--out", str(out)]) == 130
+    path = config_file()
+    assert main(["run", str(path), "--out", str(out), "-q"]) == 0
+    earlier = (out / "small-test.nc").read_bytes()
+    chunk_variables = sweep.dataset._chunk_variables
+    written = []
+
+    def interrupted_on_the_third_chunk(arrays):
+        written.append(1)
+        if len(written) == 3:
+            raise KeyboardInterrupt
+        return chunk_variables(arrays)
+
+    monkeypatch.setattr(sweep.dataset, "_chunk_variables", interrupted_on_the_third_chunk)
+    capsys.readouterr()
+    assert main(["run", str(path), "--out", str(out), "--force"]) == 130
     assert "interrupted; no new cube was written" in capsys.readouterr().err
-    assert not (out / LOCK_NAME).exists() and not (out / "small-test.nc").exists()
+    assert len(written) == 3  # stopped mid-stream, with a partial temporary file open
+    assert not (out / LOCK_NAME).exists() and not list(out.glob(".*.part"))
+    assert (out / "small-test.nc").read_bytes() == earlier
 
 
 def test_finite_burns_on_a_dask_cluster_equal_the_local_run():
