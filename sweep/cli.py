@@ -23,7 +23,7 @@ from sweep.catalog import catalog
 from sweep.config import load_config
 from sweep.dataset import fingerprint, write_dataset
 from sweep.errors import SweepError
-from sweep.evaluate import estimate_bytes
+from sweep.evaluate import estimate_bytes, estimate_memory
 from sweep.lock import output_lock
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.summary import answers, summary_tables, write_summary
@@ -207,7 +207,9 @@ def _check(args: argparse.Namespace) -> int:
         print(f"  thrust: {config.thrust.size} values, {config.thrust[0]:,.6g} to {config.thrust[-1]:,.6g} N "
               f"(thrust-to-weight {ratio[0]:.3g} to {ratio[-1]:.3g}), {config.steering} steering")
         print(f"  finite-burn points: {points * config.thrust.size:,} (x 3 strategies, each burn integrated)")
-    print(f"  cube size, uncompressed, and memory for the run: about {_size(estimate_bytes(config))}")
+    print(f"  cube size, uncompressed: about {_size(estimate_bytes(config))}")
+    print(f"  memory for the run's results (streamed to the cube chunk by chunk), on all cores: about "
+          f"{_size(estimate_memory(config))}")
     return 0
 
 

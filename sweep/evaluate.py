@@ -20,7 +20,7 @@ from joblib import Parallel, delayed
 
 from sweep.config import SweepConfig
 from sweep.evaluate_finite import FiniteArrays, evaluate_finite, finite_layout
-from sweep.grid import Chunk, chunks
+from sweep.grid import Chunk, chunks, speeds_per_chunk
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
     best_plane_change_split,
@@ -37,7 +37,7 @@ from sweep.progress import track
 from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
 
 __all__ = ["STREAMED", "STREAM_CHUNK_POINTS", "BodyPlan", "SweepArrays", "add_placeholders", "estimate_bytes",
-           "evaluate", "plan_body", "prepare", "sweep_chunks"]
+           "estimate_memory", "evaluate", "plan_body", "prepare", "sweep_chunks"]
 
 logger = logging.getLogger(__name__)
 
@@ -219,10 +219,29 @@ def _plane_layout(config: SweepConfig, bodies: int | None = None, speeds: int | 
     }
 
 
+def _bytes(layout) -> int:
+    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout)
+
+
 def estimate_bytes(config: SweepConfig) -> int:
     """Bytes of all output arrays: the cube's size uncompressed and the memory of an in-memory run."""
-    layout = [*_layout(config).values(), *_plane_layout(config).values(), *finite_layout(config).values()]
-    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout)
+    return _bytes([*_layout(config).values(), *_plane_layout(config).values(), *finite_layout(config).values()])
+
+
+def estimate_memory(config: SweepConfig, workers: int | None = None,
+                    points_per_chunk: int = STREAM_CHUNK_POINTS) -> int:
+    """
+    Bytes of output arrays a streamed run (``capsweep run``) holds at once: the arrays that are
+    not streamed (per-body values, crossovers, finite burns) plus ``workers + 2`` chunks (those
+    computed ahead, the one being written, one being made). Kernel temporaries come on top,
+    a few chunks' worth.
+    """
+    workers = workers or os.cpu_count() or 1
+    held = {name: entry for name, entry in _layout(config).items() if name not in STREAMED}
+    speeds = min(speeds_per_chunk(config.shape, points_per_chunk), config.shape[1])
+    chunk = [*(entry for name, entry in _layout(config, 1, speeds).items() if name in STREAMED),
+             *_plane_layout(config, 1, speeds).values()]
+    return _bytes([*held.values(), *finite_layout(config).values()]) + (workers + 2) * _bytes(chunk)
 
 
 def _allocate(config: SweepConfig, names, bodies: int | None = None, speeds: int | None = None) -> SweepArrays:

@@ -24,12 +24,13 @@ from joblib import Parallel, delayed
 from sweep.config import SweepConfig
 from sweep.errors import SweepError
 from sweep.grid import chunks
+from sweep.lock import alive
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.progress import track
 from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, Geometry, pick_best
 
-__all__ = ["FiniteArrays", "evaluate_finite", "finite_layout"]
+__all__ = ["FiniteArrays", "evaluate_finite", "finite_chunks", "finite_layout"]
 
 logger = logging.getLogger(__name__)
 
@@ -40,6 +41,7 @@ _BURNS = max(strategy.burns for strategy in STRATEGIES)
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
 _ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
 _BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
+_MIN_CHUNKS = 16  # finite-burn chunks per sweep at least, where the grid has that many arrival speeds
 
 
 @dataclass
@@ -260,8 +262,10 @@ def _place(out: FiniteArrays, chunk, result: dict[str, np.ndarray]) -> None:
             target[:, chunk.body, speeds] = values
 
 
-def _run_and_place(out: FiniteArrays, chunk, *args) -> None:
-    _place(out, chunk, _run_chunk(*args))
+def _run_and_place(out: FiniteArrays, chunk, parent: int, *args) -> None:
+    """A worker's task; skipped once the run that queued it is gone (killed: its worker drains the queue)."""
+    if os.getppid() == parent:
+        _place(out, chunk, _run_chunk(*args))
 
 
 _CHUNK_NAMES = ("finite_delta_v", "finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass",
@@ -299,9 +303,49 @@ def _save_checkpoint(folder: Path, index: int, result: dict[str, np.ndarray]) ->
     os.replace(temporary, final)
 
 
+def finite_chunks(config: SweepConfig, points_per_chunk: int = 1 << 14) -> list:
+    """
+    The finite-burn chunks: about ``points_per_chunk`` finite-burn points each (every thrust
+    level of a grid point goes in the same chunk), and at least ``_MIN_CHUNKS`` where the grid
+    allows, so that a small sweep still spreads over the workers and checkpoints often. They
+    depend on the grid alone, never on the worker count.
+
+    They are listed in van der Corput order (index by bit-reversed fraction), not grid order:
+    a chunk's cost grows with the arrival speed and differs by body, so grid order would leave
+    the dearest chunks for last; spread, the share of chunks done tracks the share of work
+    done, and so do the progress lines' time left and a resumed run's savings.
+    """
+    grid_points = int(np.prod(config.shape))
+    per_chunk = min(points_per_chunk // config.thrust.size, -(-grid_points // _MIN_CHUNKS))
+    work = chunks(config.shape, max(per_chunk, 1))
+    return [work[i] for i in sorted(range(len(work)), key=_radical_inverse)]
+
+
+def _radical_inverse(index: int) -> float:
+    """The van der Corput sequence in base 2: the bits of ``index`` mirrored about the point."""
+    value, scale = 0.0, 0.5
+    while index:
+        value += scale * (index & 1)
+        index >>= 1
+        scale *= 0.5
+    return value
+
+
 def _shared_folder() -> str | None:
     """A memory-backed folder for the workers' shared output, where the system has one."""
     return "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
+
+
+def _remove_stale_shared(parent: str | None) -> None:
+    """
+    Remove shared-output folders left by runs that were killed (``capsweep-<pid>-*`` whose
+    process is gone): in a memory-backed folder they would hold their size in RAM until reboot.
+    """
+    for folder in Path(parent or tempfile.gettempdir()).glob("capsweep-*-*"):
+        pid = folder.name.split("-")[1]
+        if folder.is_dir() and pid.isdigit() and not alive(int(pid)):
+            logger.info("removing %s, left by a killed run (pid %s)", folder, pid)
+            shutil.rmtree(folder, ignore_errors=True)
 
 
 def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
@@ -328,7 +372,7 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
         for body, plan in zip(config.bodies, plans, strict=True)
     ]
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
-    work = chunks(config.shape, max(points_per_chunk // config.thrust.size, 1))
+    work = finite_chunks(config, points_per_chunk)
     points = int(np.prod(config.finite_shape))
 
     def arguments(c):
@@ -346,7 +390,8 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     todo = [i for i in range(len(work)) if i not in done]
     processes = max(1, min(workers, len(todo)))
     logger.info("finite burns: %d points in %d chunks on %d processes", points, len(work), processes)
-    folder = tempfile.mkdtemp(prefix="capsweep-", dir=_shared_folder()) if processes > 1 else None
+    _remove_stale_shared(_shared_folder())
+    folder = tempfile.mkdtemp(prefix=f"capsweep-{os.getpid()}-", dir=_shared_folder()) if processes > 1 else None
     runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential", return_as="generator")
     try:
         # With several processes the workers write into memory maps; once they are done the files
@@ -358,7 +403,8 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
         for i in done:
             with np.load(_checkpoint_file(checkpoint, i)) as saved:
                 _place(out, work[i], {name: saved[name] for name in saved.files})
-        tasks = (delayed(_run_and_place)(out, work[i], *arguments(work[i])) for i in todo)
+        tasks = (delayed(_run_and_place)(out, work[i], os.getpid() if processes > 1 else os.getppid(),
+                                         *arguments(work[i])) for i in todo)
         for i, _ in zip(todo, track(runner(tasks), len(todo), points * len(todo) // max(len(work), 1),
                                     "finite burns", progress), strict=True):
             if checkpoint is not None:

@@ -22,7 +22,7 @@ class LockError(SweepError):
     """Another live capsweep process holds the output folder."""
 
 
-def _alive(pid: int) -> bool:
+def alive(pid: int) -> bool:
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -58,7 +58,7 @@ def output_lock(folder: Path):
             except (OSError, ValueError):
                 holder = {}
             pid, host = holder.get("pid"), holder.get("host")
-            if isinstance(pid, int) and host == record["host"] and not _alive(pid):
+            if isinstance(pid, int) and host == record["host"] and not alive(pid):
                 logger.warning("taking over a stale lock %s left by dead process %d", path, pid)
                 path.unlink(missing_ok=True)
                 continue

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import textwrap
 
+import netCDF4
+import numpy as np
 import pytest
 
 SMALL_CONFIG = textwrap.dedent(
@@ -53,3 +55,25 @@ def small_cube():
 
     config = parse_config(SMALL_CONFIG, "small.toml")
     return config, run(config, workers=1)
+
+
+def cube_contents(path):
+    """
+    A netCDF file as comparable values: every variable's dimensions, dtype, attributes and raw
+    bytes (so NaN equals NaN and -0.0 differs from 0.0), the global attributes but the time
+    stamp (``history``), and the dimension sizes. Equal contents: the same cube bit for bit.
+    """
+    with netCDF4.Dataset(path) as file:
+        file.set_auto_maskandscale(False)
+        variables = {
+            name: (v.dimensions, str(v.dtype), {k: repr(np.asarray(v.getncattr(k)).tolist()) for k in v.ncattrs()},
+                   _raw(v[...]))
+            for name, v in file.variables.items()
+        }
+        attrs = {k: repr(np.asarray(file.getncattr(k)).tolist()) for k in file.ncattrs() if k != "history"}
+        return variables, attrs, {k: len(d) for k, d in file.dimensions.items()}
+
+
+def _raw(values: np.ndarray):
+    """Bytes of numeric data; the strings of label variables."""
+    return values.tolist() if values.dtype == object else np.ascontiguousarray(values).tobytes()

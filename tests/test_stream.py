@@ -10,30 +10,12 @@ import pytest
 
 from sweep import build_dataset, parse_config, run, run_to_file, write_dataset
 from sweep.evaluate import STREAMED, add_placeholders, estimate_bytes, prepare, sweep_chunks
-from tests.conftest import SMALL_CONFIG
+from tests.conftest import SMALL_CONFIG, cube_contents
 from tests.test_evaluate_finite import FINITE_CONFIG
 from tests.test_plane_change import PLANE
 
 ELLIPSE = SMALL_CONFIG + "\n[target_orbit]\napoapsis_altitude = 20000.0\n"
 CONFIGS = {"small": SMALL_CONFIG, "plane_change": PLANE, "finite": FINITE_CONFIG, "ellipse": ELLIPSE}
-
-
-def _header_and_data(path):
-    """Every variable's dimensions, dtype, attributes and raw bytes; the global attributes but the time stamp."""
-    with netCDF4.Dataset(path) as file:
-        file.set_auto_maskandscale(False)
-        variables = {
-            name: (v.dimensions, str(v.dtype), {k: repr(np.asarray(v.getncattr(k)).tolist()) for k in v.ncattrs()},
-                   _raw(v[...]))
-            for name, v in file.variables.items()
-        }
-        attrs = {k: file.getncattr(k) for k in file.ncattrs() if k != "history"}
-        return variables, attrs, {k: len(d) for k, d in file.dimensions.items()}
-
-
-def _raw(values: np.ndarray):
-    """Bytes of numeric data (NaN compares equal to NaN this way); the strings of label variables."""
-    return values.tolist() if values.dtype == object else np.ascontiguousarray(values).tobytes()
 
 
 @pytest.mark.parametrize("name", sorted(CONFIGS))
@@ -44,7 +26,7 @@ def test_streamed_cube_equals_the_in_memory_cube(name, tmp_path):
     whole = write_dataset(run(config, workers=1), tmp_path / "whole.nc")
     # 40 grid points a chunk: several chunks per body, a short last one
     streamed = run_to_file(config, tmp_path / "streamed.nc", workers=2, points_per_chunk=40)
-    reference, streamed_ = _header_and_data(whole), _header_and_data(streamed)
+    reference, streamed_ = cube_contents(whole), cube_contents(streamed)
     assert set(reference[0]) == set(streamed_[0])
     for variable in reference[0]:
         assert reference[0][variable][:3] == streamed_[0][variable][:3], variable
@@ -71,18 +53,7 @@ def test_compressed_streamed_cube_is_chunked_by_body_and_speed_run(tmp_path):
 def _streamed_peak(speeds: int, folder) -> tuple[int, int]:
     """Largest Python-side allocation (tracemalloc sees numpy's buffers) of a streamed run, and the
     bytes its per-point arrays would take held whole."""
-    text = f"""
-    name = "memory-test"
-    [grid]
-    bodies = ["mars", "moon"]
-    v_inf = {{ start = 0.2, stop = 8.0, num = {speeds} }}
-    target_altitude = {{ start = 200.0, stop = 20000.0, num = 50 }}
-    periapsis_altitude = {{ start = 100.0, stop = 20000.0, num = 50 }}
-    [spacecraft]
-    specific_impulse = 320.0
-    arrival_mass = 1000.0
-    """
-    config = parse_config(text, "memory.toml")
+    config = _memory_config(speeds)
     tracemalloc.start()
     try:
         path = run_to_file(config, folder / f"memory-{speeds}.nc", workers=2, points_per_chunk=1 << 13)
@@ -134,3 +105,29 @@ def test_a_failure_mid_stream_leaves_no_file_and_the_old_cube_intact(tmp_path):
         write_dataset(dataset, path, stream=failing())
     assert path.read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["cube.nc"]
+
+
+def _memory_config(speeds: int):
+    return parse_config(f"""
+    name = "memory-test"
+    [grid]
+    bodies = ["mars", "moon"]
+    v_inf = {{ start = 0.2, stop = 8.0, num = {speeds} }}
+    target_altitude = {{ start = 200.0, stop = 20000.0, num = 50 }}
+    periapsis_altitude = {{ start = 100.0, stop = 20000.0, num = 50 }}
+    [spacecraft]
+    specific_impulse = 320.0
+    arrival_mass = 1000.0
+    """, "memory.toml")
+
+
+def test_memory_estimate_counts_chunks_not_the_grid():
+    # Common practice for a streamed writer: the estimate is the held arrays plus the chunks in
+    # flight, so multiplying the arrival speeds multiplies the cube, not the estimate.
+    from sweep.evaluate import estimate_memory
+
+    small, large = _memory_config(2_000), _memory_config(8_000)  # cubes of 1.7 and 6.9 GB (not made)
+    assert estimate_bytes(large) > 3.9 * estimate_bytes(small)
+    assert estimate_memory(large, workers=2) < 0.1 * estimate_bytes(large)
+    # held arrays with a v_inf axis (free periapsis: body x v_inf x target) still grow, by a little
+    assert estimate_memory(large, workers=2) - estimate_memory(small, workers=2) < 0.01 * estimate_bytes(large)
