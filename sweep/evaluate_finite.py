@@ -15,6 +15,7 @@ import os
 import shutil
 import socket
 import tempfile
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -393,6 +394,9 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     _remove_stale_shared(_shared_folder())
     folder = tempfile.mkdtemp(prefix=f"capsweep-{os.getpid()}-", dir=_shared_folder()) if processes > 1 else None
     runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential", return_as="generator")
+    # Saved chunks are read on a thread while the workers compute the rest (reading back half of
+    # a large run takes seconds); they touch disjoint parts of the output.
+    loader = ThreadPoolExecutor(max_workers=1, thread_name_prefix="capsweep-resume")
     try:
         # With several processes the workers write into memory maps; once they are done the files
         # are removed and the maps, still open here, are the result: nothing is pickled back.
@@ -400,16 +404,22 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
             name: np.empty(shape, dtype) if folder is None else np.lib.format.open_memmap(
                 os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
             for name, (shape, dtype) in layout.items()})
-        for i in done:
-            with np.load(_checkpoint_file(checkpoint, i)) as saved:
-                _place(out, work[i], {name: saved[name] for name in saved.files})
+
+        def load_done() -> None:
+            for i in sorted(done):
+                with np.load(_checkpoint_file(checkpoint, i)) as saved:
+                    _place(out, work[i], {name: saved[name] for name in saved.files})
+
+        loading = loader.submit(load_done)
         tasks = (delayed(_run_and_place)(out, work[i], os.getpid() if processes > 1 else os.getppid(),
                                          *arguments(work[i])) for i in todo)
         for i, _ in zip(todo, track(runner(tasks), len(todo), points * len(todo) // max(len(work), 1),
                                     "finite burns", progress), strict=True):
             if checkpoint is not None:
                 _save_checkpoint(checkpoint, i, _take(out, work[i]))
+        loading.result()  # raises what the loader met, e.g. an unreadable checkpoint
     finally:
+        loader.shutdown(wait=True, cancel_futures=True)  # never remove the maps under a running loader
         if folder is not None:
             shutil.rmtree(folder, ignore_errors=True)
     _crossovers(config, bodies, out, runner)

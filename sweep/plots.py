@@ -224,6 +224,9 @@ def _lowest_below(status: np.ndarray, names: list[str], periapses: np.ndarray, t
 
 # ---- winner maps -------------------------------------------------------------------------------
 
+_MAX_COLUMNS = 1500  # arrival speeds drawn per winner map at most: more than a panel has pixels
+
+
 class _MapAxes:
     """Shared geometry of one body's winner-map panels: x = v_inf, y = target altitude."""
 
@@ -238,7 +241,10 @@ class _MapAxes:
     def draw(self, ax: Axes, best: np.ndarray) -> None:
         """``best`` (V, T): the winner index per cell, -1 for none."""
         cmap, norm = _winner_colours(self.names)
-        ax.pcolormesh(self.x_edges, self.y_edges, best.T, cmap=cmap, norm=norm, shading="flat",
+        # Finer than the panel's pixels, a column can't show: every k-th column, drawn k wide
+        step = -(-best.shape[0] // _MAX_COLUMNS)
+        edges = np.append(self.x_edges[:-1:step], self.x_edges[-1])
+        ax.pcolormesh(edges, self.y_edges, best[::step].T, cmap=cmap, norm=norm, shading="flat",
                       edgecolors="face", linewidth=0.0)
         if self.log_y:
             ax.set_yscale("log")

@@ -37,8 +37,9 @@ import numpy as np
 
 from sweep.config import parse_config
 from sweep.dataset import build_dataset, write_dataset
-from sweep.evaluate import NO_STRATEGY, evaluate, plan_body
+from sweep.evaluate import evaluate, plan_body
 from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.strategies import NO_STRATEGY
 
 BODIES = ("mars", "venus", "moon", "jupiter")
 TARGETS = 50
@@ -249,7 +250,7 @@ def main(argv=None):
     # the serial per-body part of evaluate (geometry, chosen apoapsis, status), for context
     plan_time, _, _ = best_of(options.repeat, lambda: [plan_body(body, config) for body in config.bodies])
     rate = {w: points / t for w, t in eval_best.items()}
-    array_bytes = sum(v.nbytes for v in vars(arrays).values())
+    array_bytes = sum(v.nbytes for v in vars(arrays).values() if v is not None)
 
     # ---- the per-point loop on a seeded random sample ----------------------------------
     rng = np.random.default_rng(options.seed)

@@ -30,25 +30,13 @@ import sys
 import tempfile
 from pathlib import Path
 
+from bench_impulsive import BODIES, CONFIG  # the same grid template, with other axis sizes
+
 ROOT = Path(__file__).resolve().parents[2]
-BODIES = ("mars", "venus", "moon", "jupiter")
 TARGETS, PERIAPSES = 50, 500
 RSS_TARGET = 1e9  # bytes
 RATIO_TARGET = 2.0  # sweep time / bare write time, at most
 
-CONFIG = """\
-name = "bench-stream"
-[grid]
-bodies = [{bodies}]
-v_inf = {{ start = 0.2, stop = 9.0, num = {speeds} }}
-target_altitude = {{ start = 200, stop = 20000, num = {targets}, spacing = "log" }}
-periapsis_altitude = {{ start = 50, stop = 5000, num = {periapses}, spacing = "log" }}
-[spacecraft]
-specific_impulse = 320.0
-arrival_mass = 1000.0
-[three_burn]
-max_time_to_orbit = 20.0
-"""
 
 # Child programs: read the config text on stdin, print one JSON line.
 SWEEP = """
