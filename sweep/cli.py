@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import hashlib
 import logging
+import os
 import shutil
 import sys
 import time
@@ -52,7 +53,8 @@ def _build_parser() -> argparse.ArgumentParser:
     run_parser.add_argument("--compression", type=int, default=0, choices=range(10), metavar="LEVEL",
                             help="zlib level 1-9 for the cube, 0 for none (default 0: see the README)")
     run_parser.add_argument("--force", action="store_true",
-                            help="recompute even when the cube is up to date with the config, catalog and version")
+                            help="recompute even when the cube is up to date with the config, catalog and version, "
+                            "and run even when the size estimate exceeds the free disk or memory")
     run_parser.add_argument("-q", "--quiet", action="store_true", help="print only where the files went")
     run_parser.add_argument("-v", "--verbose", action="count", default=0, help="log progress (-vv: debug)")
 
@@ -106,10 +108,13 @@ def _run(args: argparse.Namespace) -> int:
         shutil.rmtree(checkpoint, ignore_errors=True)  # left by a run killed after its cube landed
         print(f"up to date: {cube_path} (config, body catalog and capsweep version unchanged; --force recomputes)")
         return 0
+    if not args.force:
+        _check_room(config, folder, args.workers or None)
+    _check_writable(folder)
+    # Checkpoints are kept even with --force: they are keyed by the same config, catalog and
+    # version, so loading them gives the same cube, and a forced run that is killed resumes.
     with output_lock(folder), _log_file(folder / "capsweep.log"):
         logging.getLogger("sweep").info("run of %s into %s", config.path, folder)
-        if args.force:
-            shutil.rmtree(checkpoint, ignore_errors=True)
         started = time.perf_counter()
         # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
         cube = _write(lambda: run_to_file(
@@ -130,6 +135,44 @@ def _run(args: argparse.Namespace) -> int:
                       f"{elapsed:.2f} s")
                 print(_short_answer(dataset))
     return 0
+
+
+def _check_room(config, folder: Path, workers: int | None) -> None:
+    """Refuse a grid whose cube would not fit on the disk, or whose results would not fit in memory."""
+    cube, memory = estimate_bytes(config), estimate_memory(config, workers)
+    existing = next(p for p in (folder, *folder.absolute().parents) if p.exists())
+    free_disk, free_memory = shutil.disk_usage(existing).free, _available_memory()
+    hint = "shrink the grid, or pass --force to run anyway"
+    if cube > free_disk:
+        raise SweepError(f"{config.path}: grid: the cube would take about {_size(cube)} uncompressed, but {existing} "
+                         f"has {_size(free_disk)} free; {hint}")
+    if free_memory is not None and memory > free_memory:
+        raise SweepError(f"{config.path}: grid: the run would hold about {_size(memory)} of results in memory, but "
+                         f"{_size(free_memory)} is available; {hint}")
+
+
+def _available_memory() -> int | None:
+    """Memory available to a new process, bytes (Linux MemAvailable); None where unknown."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as info:
+            for line in info:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return None
+
+
+def _check_writable(folder: Path) -> None:
+    """Fail before any work if the output folder cannot be made or written to."""
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        probe = folder / f".capsweep-write-test-{os.getpid()}"
+        probe.write_bytes(b"")
+        probe.unlink()
+    except OSError as err:
+        raise SweepError(f"{err.filename or folder}: output folder cannot be written: "
+                         f"{err.strerror or err} (choose another with --out)") from err
 
 
 @contextmanager
@@ -317,6 +360,12 @@ def main(argv: Sequence[str] | None = None) -> int:
             raise
         print(f"capsweep: error: {err}", file=sys.stderr)
         return 2
+    except MemoryError:
+        if args.debug:
+            raise
+        print("capsweep: error: out of memory; shrink the grid (`capsweep check CONFIG` prints what a run holds) or "
+              "use fewer --workers; earlier outputs are untouched", file=sys.stderr)
+        return 2
     except KeyboardInterrupt:
         print("capsweep: interrupted; no new cube was written and earlier outputs are untouched; run the same "
               "command again to resume (finished finite-burn chunks are kept)", file=sys.stderr)
@@ -324,3 +373,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except BrokenPipeError:  # output piped into a reader that closed early, e.g. `| head`
         sys.stderr.close()
         return 0
+    except Exception as err:  # a defect, not bad input: still one line, and the way to the details
+        if args.debug:
+            raise
+        print(f"capsweep: internal error: {type(err).__name__}: {err} (a defect in capsweep, not in your input; "
+              "rerun with --debug for the traceback and report it); earlier outputs are untouched", file=sys.stderr)
+        return 3

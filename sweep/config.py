@@ -34,7 +34,13 @@ _DAY = 86400.0  # s
 
 
 class _Model(BaseModel):
-    model_config = ConfigDict(extra="forbid", strict=True, frozen=True)
+    # TOML has inf and nan literals: no number in a config may be either
+    model_config = ConfigDict(extra="forbid", strict=True, frozen=True, allow_inf_nan=False)
+
+
+_MAX_AXIS_VALUES = 10_000_000  # per axis: beyond any useful sweep, and keeps a typo from exhausting memory
+_MAX_V_INF = 1000.0  # km/s: far above any solar-system arrival (tens of km/s); patched conics are Newtonian
+_MAX_THRUST_TO_WEIGHT = 1.0e4  # beyond this a burn is impulsive for every purpose here
 
 
 class AxisRange(_Model):
@@ -42,7 +48,7 @@ class AxisRange(_Model):
 
     start: float
     stop: float
-    num: Annotated[int, Field(gt=0)]
+    num: Annotated[int, Field(gt=0, le=_MAX_AXIS_VALUES)]
     spacing: Literal["linear", "log"] = "linear"
 
 
@@ -88,6 +94,8 @@ class Grid(_Model):
         if isinstance(value, list):
             if not value:
                 raise ValueError("an axis needs at least one value")
+            if len(value) > _MAX_AXIS_VALUES:
+                raise ValueError(f"an axis holds at most {_MAX_AXIS_VALUES:,} values")
             return value
         if isinstance(value, dict):
             return value
@@ -97,8 +105,8 @@ class Grid(_Model):
 class Spacecraft(_Model):
     """Engine and mass figures for propellant estimates."""
 
-    specific_impulse: Annotated[float, Field(gt=0)]  # s
-    arrival_mass: Annotated[float, Field(gt=0)]  # kg
+    specific_impulse: Annotated[float, Field(ge=1, le=1.0e5)]  # s: chemical to ion engines, with room
+    arrival_mass: Annotated[float, Field(gt=0, le=1.0e9)]  # kg
 
 
 class ThreeBurn(_Model):
@@ -279,12 +287,29 @@ def _check_minimum(values: np.ndarray, minimum: float, key: str, path: str, what
         raise ConfigError(f"{path}: {key}: {what} (got {float(values.min())!r})")
 
 
+def _check_inside_some_sphere(altitudes: np.ndarray, bodies: tuple[Body, ...], key: str, path: str) -> None:
+    """
+    An altitude beyond the sphere of influence of every body on the grid can never be flown.
+    One beyond some bodies' spheres only is kept: those points carry a status code in the cube.
+    """
+    reach = {body.name: (body.sphere_of_influence - body.radius) / 1e3 for body in bodies}
+    widest = max(reach, key=reach.get)
+    if altitudes.max() > reach[widest]:
+        where = "the body's" if len(bodies) == 1 else "every body's"
+        raise ConfigError(
+            f"{path}: {key}: altitudes must lie inside {where} sphere of influence (largest: {widest} "
+            f"{reach[widest]:,.0f} km altitude) (got {float(altitudes.max())!r})"
+        )
+
+
 def parse_config(text: str, path: str = "<config>") -> SweepConfig:
     """Validate TOML text; raise :class:`ConfigError` naming ``path``, key and value."""
     try:
         document = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
-        raise ConfigError(f"{path}: not valid TOML: {err}") from err
+        # tomllib ends its message with "(at line L, column C)", or "(at end of document)": name that line too
+        where = f"(at end of document, line {text.count(chr(10)) + 1})"
+        raise ConfigError(f"{path}: not valid TOML: {str(err).replace('(at end of document)', where)}") from err
     try:
         model = ConfigFile.model_validate(document)
     except ValidationError as err:
@@ -299,6 +324,11 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
     _check_minimum(v_inf, 0.0, "grid.v_inf", path, "arrival speeds must be >= 0 km/s")
     _check_minimum(target, 0.0, "grid.target_altitude", path, above_surface)
     _check_minimum(periapsis, 0.0, "grid.periapsis_altitude", path, above_surface)
+    if v_inf.max() > _MAX_V_INF:
+        raise ConfigError(f"{path}: grid.v_inf: arrival speeds must be at most {_MAX_V_INF:g} km/s, far above any "
+                          f"solar-system arrival (got {float(v_inf.max())!r})")
+    for key, values in (("grid.target_altitude", target), ("grid.periapsis_altitude", periapsis)):
+        _check_inside_some_sphere(values, bodies, key, path)
     thrust, given_as = _thrust_axis(grid, model.spacecraft.arrival_mass, path)
     plane_change = None
     if grid.plane_change is not None:
@@ -413,6 +443,12 @@ def _thrust_axis(grid: Grid, arrival_mass: float, path: str) -> tuple[np.ndarray
         values = _axis_values(axis, f"grid.{key}", path)
         if values.min() <= 0:
             raise ConfigError(f"{path}: grid.{key}: values must be > 0 (got {float(values.min())!r})")
+        ratio = values if key == "thrust_to_weight" else values / (arrival_mass * STANDARD_GRAVITY)
+        if ratio.max() > _MAX_THRUST_TO_WEIGHT:
+            raise ConfigError(
+                f"{path}: grid.{key}: thrust-to-weight must be at most {_MAX_THRUST_TO_WEIGHT:g} (burns are "
+                f"impulsive long before; the impulsive results are in the cube) (got {float(values.max())!r})"
+            )
         if key == "thrust_to_weight":
             values = values * arrival_mass * STANDARD_GRAVITY
         return values, key
@@ -445,8 +481,26 @@ def _resolve_bodies(names: list[str], defined: dict[str, BodyFields], path: str)
                 f"{path}: grid.bodies.{index}: {name!r} has no parent body, so no sphere of "
                 "influence bounds a capture about it"
             )
+        _check_orbit(body, overrides, path)
         bodies.append(body)
     return tuple(bodies)
+
+
+def _check_orbit(body: Body, overrides: dict[str, dict], path: str) -> None:
+    """A body's constants must describe a satellite: lighter than its parent, orbiting outside it."""
+    parent = resolve_body(body.parent, overrides, origin=path)
+    table = f"[bodies.{body.name}]"
+    if body.gm >= parent.gm:
+        raise ConfigError(
+            f"{path}: {table} gm: a body must be lighter than its parent {parent.name!r} "
+            f"({parent.gm / 1e9:.6g} km3 s-2) to have a sphere of influence (got {body.gm / 1e9!r})"
+        )
+    if body.semi_major_axis <= parent.radius + body.radius:
+        raise ConfigError(
+            f"{path}: {table} semi_major_axis: the orbit must clear its parent {parent.name!r} (mean radius "
+            f"{parent.radius / 1e3:,.6g} km plus the body's own {body.radius / 1e3:,.6g} km) "
+            f"(got {body.semi_major_axis / 1e3!r})"
+        )
 
 
 def load_config(path: str | Path | None = None) -> SweepConfig:

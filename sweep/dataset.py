@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
+import errno
 import hashlib
-import os
-import uuid
+import shutil
 from collections.abc import Iterable
 from datetime import UTC, datetime
 from pathlib import Path
@@ -14,6 +14,7 @@ import numpy as np
 import xarray as xr
 
 from sweep import __version__
+from sweep.atomic import replacing
 from sweep.catalog import catalog_text
 from sweep.config import SweepConfig
 from sweep.evaluate import STREAMED, SweepArrays
@@ -306,20 +307,30 @@ def write_dataset(dataset: xr.Dataset, path: str | Path, compression: int = 0,
         raise ValueError(f"compression must be a zlib level 0-9, got {compression!r}")
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    # A new name rather than a file made by mkstemp: netCDF truncating an existing file costs a
-    # flush on close (measured 0.4 s per 1.7 GB on ext4 here), a new file does not.
-    temporary = path.with_name(f".{path.name}.{os.getpid()}.{uuid.uuid4().hex}.part")
     try:
-        if stream is None:
-            dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4",
-                              encoding=_encoding(dataset, compression))
-        else:
-            _write_streamed(dataset, stream, temporary, compression, speeds_per_chunk)
-        os.replace(temporary, path)
-    except BaseException:
-        temporary.unlink(missing_ok=True)
-        raise
+        with replacing(path) as temporary:
+            try:
+                if stream is None:
+                    dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4",
+                                      encoding=_encoding(dataset, compression))
+                else:
+                    _write_streamed(dataset, stream, temporary, compression, speeds_per_chunk)
+            except RuntimeError:  # measure the disk before the partial file goes
+                free = shutil.disk_usage(path.parent).free
+                raise
+    except RuntimeError as err:  # netCDF-C reports a full disk as "NetCDF: HDF error", not as an OSError
+        if free < _NEARLY_FULL:
+            raise OSError(errno.ENOSPC, f"No space left on device ({_mib(free)} free; netCDF: {err})", str(path)) \
+                from err
+        raise OSError(errno.EIO, f"netCDF write failed: {err}", str(path)) from err
     return path
+
+
+_NEARLY_FULL = 64 << 20  # bytes free below which a failed write is taken for a full disk
+
+
+def _mib(count: int) -> str:
+    return f"{count / (1 << 20):.1f} MiB"
 
 
 def _chunk_variables(arrays: SweepArrays) -> dict[str, np.ndarray]:

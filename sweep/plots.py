@@ -38,6 +38,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 from matplotlib.ticker import FixedLocator, FuncFormatter, LogLocator, MaxNLocator, NullLocator
 
+from sweep.atomic import replacing
 from sweep.strategies import CROSSOVER_VARIABLES, FINITE_CROSSOVER_VARIABLES, cube_labels
 
 __all__ = ["DPI", "STRATEGY_COLOURS", "draw_figure", "figure_files", "fill_colour", "write_figures"]
@@ -661,7 +662,9 @@ def write_figures(dataset: xr.Dataset, folder: str | Path, workers: int | None =
 
 
 def _draw_to_file(dataset: xr.Dataset, kind: str, b: int, path: Path) -> Path:
-    _DRAW[kind](dataset, b).savefig(path, dpi=DPI, facecolor="white", metadata={"Software": None})
+    with replacing(path) as temporary:
+        _DRAW[kind](dataset, b).savefig(temporary, format="png", dpi=DPI, facecolor="white",
+                                        metadata={"Software": None})
     return path
 
 

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
+from sweep.atomic import replacing
 from sweep.strategies import CROSSOVER_VARIABLES, cube_labels
 
 __all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
@@ -394,9 +395,11 @@ def write_summary(dataset: xr.Dataset, folder: str | Path) -> list[Path]:
     written = []
     for name, table in tables.items():
         path = folder / f"{name}.csv"
-        table.to_csv(path, index=False, float_format="%.6g")
+        with replacing(path) as temporary:
+            table.to_csv(temporary, index=False, float_format="%.6g")
         written.append(path)
     path = folder / "summary.md"
     figures = [figure for figure in figure_files(dataset) if (folder / figure[1]).is_file()]
-    path.write_text(render_summary(dataset, tables, figures), encoding="utf-8")
+    with replacing(path) as temporary:
+        temporary.write_text(render_summary(dataset, tables, figures), encoding="utf-8")
     return [path, *written]
