@@ -7,7 +7,9 @@ Errors name the file, the key path, the value and what would be valid.
 from __future__ import annotations
 
 import difflib
+import json
 import math
+import re
 import tomllib
 from dataclasses import dataclass
 from importlib import resources
@@ -116,21 +118,21 @@ class ThreeBurn(_Model):
     # arXiv:0806.2882) find prograde orbits stay bound out to about half the Hill radius;
     # applied here to the smaller of the two radii, which keeps it conservative.
     apoapsis_fraction: Annotated[float, Field(gt=0, le=1)] = 0.5
-    max_time_to_orbit: Annotated[float, Field(gt=0)] | None = None  # days
+    max_time_to_orbit: Annotated[float, Field(gt=0, le=1.0e6)] | None = None  # days (1e6: some 2,700 years)
 
 
 class Crossover(_Model):
     """Arrival-speed range searched for the equal-cost speed (km/s)."""
 
-    v_inf_min: Annotated[float, Field(ge=0)] = 0.0
-    v_inf_max: Annotated[float, Field(gt=0)] = 30.0
+    v_inf_min: Annotated[float, Field(ge=0, le=_MAX_V_INF)] = 0.0
+    v_inf_max: Annotated[float, Field(gt=0, le=_MAX_V_INF)] = 30.0
 
 
 class TargetOrbit(_Model):
     """An elliptical target: its periapsis altitude is the grid's target_altitude."""
 
-    apoapsis_altitude: Annotated[float, Field(gt=0)] | None = None  # km
-    period: Annotated[float, Field(gt=0)] | None = None  # hours
+    apoapsis_altitude: Annotated[float, Field(gt=0)] | None = None  # km (inside the sphere of influence: checked)
+    period: Annotated[float, Field(gt=0, le=1.0e6)] | None = None  # hours
 
 
 class FiniteBurn(_Model):
@@ -142,12 +144,14 @@ class FiniteBurn(_Model):
 class BodyFields(_Model):
     """A body defined, or catalog fields overridden, in the config (catalog units)."""
 
-    gm: Annotated[float, Field(gt=0)] | None = None  # km3 s-2
-    mean_radius: Annotated[float, Field(gt=0)] | None = None  # km
-    equatorial_radius: Annotated[float, Field(gt=0)] | None = None  # km
-    safe_periapsis_altitude: Annotated[float, Field(ge=0)] | None = None  # km
+    # Bounds far outside the solar system's range (the Sun: GM 1.3e11 km3 s-2, radius 7e5 km),
+    # so that no value overflows the physics: common practice for input validation.
+    gm: Annotated[float, Field(gt=0, le=1.0e13)] | None = None  # km3 s-2
+    mean_radius: Annotated[float, Field(gt=0, le=1.0e7)] | None = None  # km
+    equatorial_radius: Annotated[float, Field(gt=0, le=1.0e7)] | None = None  # km
+    safe_periapsis_altitude: Annotated[float, Field(ge=0, le=1.0e7)] | None = None  # km
     parent: str | None = None
-    semi_major_axis: Annotated[float, Field(gt=0)] | None = None  # km
+    semi_major_axis: Annotated[float, Field(gt=0, le=1.0e12)] | None = None  # km
 
 
 class ConfigFile(_Model):
@@ -201,11 +205,14 @@ class SweepConfig:
         return (*self.shape, self.thrust.size) if self.thrust is not None else ()
 
 
+_BARE_KEY = re.compile(r"[A-Za-z0-9_-]+")  # TOML bare keys; others are quoted
 _UNION_MEMBERS = ("list[", "AxisRange", "HohmannArrival", "list", "range", "hohmann")  # pydantic loc parts
 
 
 def _key_path(loc: tuple) -> str:
-    return ".".join(str(part) for part in loc if not str(part).startswith(_UNION_MEMBERS))
+    """Dotted key path as written in TOML: bare keys as they are, any other key quoted."""
+    parts = [str(part) for part in loc if not str(part).startswith(_UNION_MEMBERS)]
+    return ".".join(part if _BARE_KEY.fullmatch(part) else json.dumps(part) for part in parts)
 
 
 def _fields_at(loc: tuple, full_loc: tuple = ()) -> list[str]:
@@ -243,8 +250,16 @@ def _describe(error: dict, path: str) -> str:
     return f"{path}: {key}: {message} (got {error.get('input')!r})"
 
 
+_WRONG_MEMBER = ("model_type", "model_attributes_type", "dict_type", "list_type")
+
+
 def _pick_error(errors: list[dict]) -> dict:
     """Choose the most telling of pydantic's errors (a union reports one per member)."""
+    # A list given where a list or a table may stand: the table member's "not a table" says
+    # nothing; the list member's error (a bad element) does.
+    inside = [e for e in errors if any(str(p).startswith("list[") for p in e["loc"]) and e["type"] not in _WRONG_MEMBER]
+    if inside and all(e["type"] in _WRONG_MEMBER or e in inside for e in errors):
+        return inside[0]
     for error in errors:
         if error["type"] in ("extra_forbidden", "missing") and not any(
             str(p).startswith("list[") for p in error["loc"]
@@ -382,6 +397,8 @@ def _check_target_orbit(orbit: TargetOrbit, bodies, target_altitudes: np.ndarray
             f"{path}: target_orbit.apoapsis_altitude: must be at least every grid.target_altitude (the target's "
             f"periapsis; largest {float(target_altitudes.max())!r} km), got {orbit.apoapsis_altitude!r}"
         )
+    if orbit.apoapsis_altitude is not None:
+        _check_inside_some_sphere(np.array([orbit.apoapsis_altitude]), bodies, "target_orbit.apoapsis_altitude", path)
     if orbit.period is not None:
         for body in bodies:
             semi_major_axis = semi_major_axis_from_period(body.gm, orbit.period * 3600.0)

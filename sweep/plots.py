@@ -658,13 +658,18 @@ def write_figures(dataset: xr.Dataset, folder: str | Path, workers: int | None =
     figures = _figures(dataset)
     processes = max(1, min(workers or os.cpu_count() or 1, len(figures)))
     runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential")
-    return runner(delayed(_draw_to_file)(dataset, kind, b, folder / file_name) for kind, b, file_name, _ in figures)
+    return runner(delayed(_draw_to_file)(dataset, kind, b, folder / file_name, processes > 1)
+                  for kind, b, file_name, _ in figures)
 
 
-def _draw_to_file(dataset: xr.Dataset, kind: str, b: int, path: Path) -> Path:
-    with replacing(path) as temporary:
-        _DRAW[kind](dataset, b).savefig(temporary, format="png", dpi=DPI, facecolor="white",
-                                        metadata={"Software": None})
+def _draw_to_file(dataset: xr.Dataset, kind: str, b: int, path: Path, in_worker: bool) -> Path:
+    try:
+        with replacing(path) as temporary:
+            _DRAW[kind](dataset, b).savefig(temporary, format="png", dpi=DPI, facecolor="white",
+                                            metadata={"Software": None})
+    finally:
+        if in_worker:  # the worker's own copy: let go of the cube file (it may be replaced or unmounted)
+            dataset.close()
     return path
 
 

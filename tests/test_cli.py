@@ -97,13 +97,6 @@ def test_errors_exit_2_with_one_line(argv, message, config_file, small_config_te
     assert re.search(message, err), err
 
 
-def test_unwritable_output_folder_exits_2(config_file, tmp_path, capsys):
-    blocker = tmp_path / "file"
-    blocker.write_text("not a folder")
-    assert main(["run", str(config_file()), "--out", str(blocker / "sub")]) == 2
-    assert "cannot write output" in capsys.readouterr().err
-
-
 def test_failed_write_keeps_the_previous_cube(config_file, tmp_path, monkeypatch):
     out = tmp_path / "out"
     assert main(["run", str(config_file()), "--out", str(out), "-q"]) == 0

@@ -26,9 +26,9 @@ FILE = "fuzz.toml"
 # What a rejection names after the file: a key path, a table, a line (TOML syntax), or a body.
 NAMES_A_KEY_OR_LINE = re.compile(
     r"^fuzz\.toml: (not valid TOML: .*\bline \d+"
-    r"|unknown key '[^']+'"
+    r"|unknown key '[^']*'"
     r"|missing required key '[^']+'"
-    r"|[A-Za-z_][\w.]*: "
+    r'|(?:[\w-]+|"[^"]*")(?:\.(?:[\w-]+|"[^"]*"))*: '
     r"|\[bodies\.[^\]]+\] \w+: "
     r"|body '[^']+' )"
 )
@@ -142,3 +142,64 @@ def test_command_line_never_shows_a_traceback(document):
         lines = err.getvalue().splitlines()
         assert 1 <= len(lines) <= 2 and lines[0].startswith(f"capsweep: error: {path}: "), lines
         assert NAMES_A_KEY_OR_LINE.search(lines[0].removeprefix("capsweep: error: ").replace(str(path), FILE))
+
+
+def _numeric_leaves(table: dict, path: tuple = ()) -> list[tuple]:
+    leaves = []
+    for key, value in table.items():
+        if isinstance(value, dict):
+            leaves += _numeric_leaves(value, (*path, key))
+        elif isinstance(value, list):
+            leaves += [((*path, key), i) for i, v in enumerate(value) if isinstance(v, int | float)]
+        elif isinstance(value, int | float) and not isinstance(value, bool):
+            leaves.append(((*path, key), None))
+    return leaves
+
+
+numbers = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.floats(min_value=-1e4, max_value=1e6),
+    st.sampled_from([0.0, -0.0, 1e-300, 5e-324, 1e300, 0.1, 1.0, 200.0, 199.999999, 49_000.0, 66_000.0]),
+    st.integers(min_value=-(2**63), max_value=2**63 - 1),
+)
+
+
+@settings(max_examples=120, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.data())
+def test_numeric_extremes_are_rejected_or_evaluated_without_a_warning(data):
+    # Keep the structure, change one to three numbers (anywhere: axes, spacecraft, bounds) to
+    # anything a TOML number can be. Accepted documents are evaluated with every warning an error:
+    # legal extremes give finite values or a status code, never a silent NaN or a numpy warning.
+    import warnings
+
+    import numpy as np
+
+    from sweep import run
+
+    document = tomllib.loads(SMALL_CONFIG)
+    leaves = _numeric_leaves(document)
+    for _ in range(data.draw(st.integers(1, 3))):
+        (path, index) = data.draw(st.sampled_from(leaves))
+        table = document
+        for key in path[:-1]:
+            table = table[key]
+        value = data.draw(numbers)
+        if index is None:
+            table[path[-1]] = value
+        else:
+            table[path[-1]][index] = value
+    text = _dump(document)
+    if text is None:
+        return
+    try:
+        config = parse_config(text, FILE)
+    except ConfigError as err:
+        assert NAMES_A_KEY_OR_LINE.search(str(err)), str(err)
+        return
+    if int(np.prod(config.shape)) > 200_000:
+        return  # legal but slow for a fuzz example
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        cube = run(config, workers=1)
+    delta_v, status = cube.delta_v.values, cube.status.values
+    assert (np.isfinite(delta_v) | (status != 0)).all()
