@@ -9,6 +9,7 @@ alone, so the cube is bit-identical for any number of workers.
 from __future__ import annotations
 
 import logging
+import math
 import os
 from collections import deque
 from collections.abc import Iterator
@@ -220,7 +221,7 @@ def _plane_layout(config: SweepConfig, bodies: int | None = None, speeds: int | 
 
 
 def _bytes(layout) -> int:
-    return sum(int(np.prod(shape)) * np.dtype(dtype).itemsize for shape, dtype in layout)
+    return sum(math.prod(shape) * np.dtype(dtype).itemsize for shape, dtype in layout)  # Python ints: no overflow
 
 
 def estimate_bytes(config: SweepConfig) -> int:

@@ -202,3 +202,12 @@ def test_a_disk_that_really_fills_during_the_write(small_disk, config_file, caps
     with xr.open_dataset(out / "small-test.nc") as cube:
         assert cube.sizes["v_inf"] == 12
     assert not list(out.glob(".*.part"))
+
+
+def test_an_absurd_grid_is_refused_before_anything_is_allocated(config_file, tmp_path, capsys):
+    # 1.2e15 points (about 200 PB of cube): the estimate is exact integer arithmetic, not int64
+    path = config_file(SMALL_CONFIG.replace("num = 12 }", "num = 10000000 }").replace(
+        "target_altitude = [300.0, 5000.0]", "target_altitude = { start = 300.0, stop = 5000.0, num = 10000000 }"))
+    _rejected(capsys, ["run", str(path), "--out", str(tmp_path / "out")],
+              r"grid: the cube would take about [\d,.]+ TiB uncompressed, but .* free; shrink the grid")
+    assert not (tmp_path / "out").exists()

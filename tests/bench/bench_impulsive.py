@@ -209,6 +209,13 @@ def best_of(repeat, func):
     return min(times), times, result
 
 
+def config_text(points: float, targets: int = TARGETS, periapses: int = PERIAPSES) -> tuple[str, int]:
+    """The benchmark grid with at least ``points`` points (whole arrival speeds): TOML text, speed count."""
+    speeds = max(1, math.ceil(points / (len(BODIES) * targets * periapses)))
+    return CONFIG.format(bodies=", ".join(f'"{b}"' for b in BODIES), speeds=speeds, targets=targets,
+                         periapses=periapses), speeds
+
+
 def verdict(ok):
     return "PASS" if ok else "FAIL"
 
@@ -224,10 +231,7 @@ def main(argv=None):
     parser.add_argument("--tmp", default=None, help="folder to create the temporary folder in")
     options = parser.parse_args(argv)
 
-    per_speed = len(BODIES) * TARGETS * PERIAPSES
-    speeds = max(1, math.ceil(options.points / per_speed))
-    text = CONFIG.format(bodies=", ".join(f'"{b}"' for b in BODIES), speeds=speeds, targets=TARGETS,
-                         periapses=PERIAPSES)
+    text, _ = config_text(options.points)
     config = parse_config(text, "<bench>")
     points = int(np.prod(config.shape))
     print(f"capsweep impulsive benchmark: python {sys.version.split()[0]}, numpy {np.__version__}, "

@@ -2,8 +2,12 @@
 
 Not collected by pytest. Run it directly:
 
-    python tests/bench/bench_resume.py              # about two minutes per full run here
-    python tests/bench/bench_resume.py --speeds 960 # a quick run (fixed costs dominate: figures, start-up)
+    python tests/bench/bench_resume.py               # about two minutes per full run here
+    python tests/bench/bench_resume.py --speeds 28800 # about three and a half
+    python tests/bench/bench_resume.py --speeds 960  # a quick run (fixed costs dominate: figures, start-up)
+
+What a resumed run repeats, whatever its length, is the work after the chunks (the crossover
+search, writing the cube, summary and figures), so the ratio falls towards 0.5 as runs grow.
 
 In one run, with ``capsweep run`` as a child process each time (as cron would start it):
 

@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import math
 import os
 import shutil
 import subprocess
@@ -30,7 +29,7 @@ import sys
 import tempfile
 from pathlib import Path
 
-from bench_impulsive import BODIES, CONFIG  # the same grid template, with other axis sizes
+from bench_impulsive import BODIES, config_text  # the same grid template, with other axis sizes
 
 ROOT = Path(__file__).resolve().parents[2]
 TARGETS, PERIAPSES = 50, 500
@@ -113,11 +112,8 @@ def main(argv=None) -> int:
     parser.add_argument("--repeat", type=int, default=2, help="alternating repeats (best is reported)")
     parser.add_argument("--tmp", default=None, help="folder to create the temporary folder in (needs disk)")
     options = parser.parse_args(argv)
-    per_speed = len(BODIES) * TARGETS * PERIAPSES
-    speeds = max(1, math.ceil(options.points / per_speed))
-    text = CONFIG.format(bodies=", ".join(f'"{b}"' for b in BODIES), speeds=speeds, targets=TARGETS,
-                         periapses=PERIAPSES)
-    points = speeds * per_speed
+    text, speeds = config_text(options.points, TARGETS, PERIAPSES)
+    points = speeds * len(BODIES) * TARGETS * PERIAPSES
     folder = Path(tempfile.mkdtemp(prefix="capsweep-bench-", dir=options.tmp))
     print(f"capsweep streamed-sweep benchmark: {points:,} points (4 bodies x {speeds} v_inf x {TARGETS} targets x "
           f"{PERIAPSES} periapses), {os.cpu_count()} cpus, files in {folder}")
