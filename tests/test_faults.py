@@ -211,3 +211,16 @@ def test_an_absurd_grid_is_refused_before_anything_is_allocated(config_file, tmp
     _rejected(capsys, ["run", str(path), "--out", str(tmp_path / "out")],
               r"grid: the cube would take about [\d,.]+ TiB uncompressed, but .* free; shrink the grid")
     assert not (tmp_path / "out").exists()
+
+
+def test_a_first_run_that_fails_leaves_no_file_at_the_final_path(config_file, tmp_path, capsys, monkeypatch):
+    import sweep.dataset
+
+    def failing(arrays):
+        raise OSError(5, "Input/output error")
+
+    monkeypatch.setattr(sweep.dataset, "_chunk_variables", failing)
+    out = tmp_path / "out"
+    _rejected(capsys, ["run", str(config_file()), "--out", str(out)], r"cannot write output: Input/output error")
+    assert not (out / "small-test.nc").exists() and not list(out.glob(".*.part"))
+    assert not (out / "summary.md").exists()

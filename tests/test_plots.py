@@ -294,3 +294,12 @@ def test_summary_links_the_plane_change_figure(plane_figures):
     text = write_summary(cube, folder)[0].read_text()
     assert "![Mars: cheapest capture strategy with a plane change](plane_change_mars.png)" in text
     assert text.count("![") == len(figure_files(cube))
+
+
+def test_figures_are_the_same_bytes_on_one_or_two_worker_processes(small_cube, tmp_path):
+    _, cube = small_cube
+    one = write_figures(cube, tmp_path / "one", workers=1)
+    two = write_figures(cube, tmp_path / "two", workers=2)
+    assert [p.name for p in one] == [p.name for p in two] and len(one) >= 6
+    assert all(a.read_bytes() == b.read_bytes() for a, b in zip(one, two, strict=True))
+    assert not list((tmp_path / "two").glob(".*.part"))
