@@ -20,6 +20,7 @@ from pathlib import Path
 import xarray as xr
 
 from sweep import __version__, run_to_file
+from sweep.atomic import replacing
 from sweep.catalog import catalog
 from sweep.config import load_config
 from sweep.dataset import fingerprint, write_dataset
@@ -331,8 +332,12 @@ def _universal(args: argparse.Namespace) -> int:
                                 np.geomspace(args.periapsis_ratio_min, 3.0, 121))
     cube = _write(lambda: write_dataset(dataset, args.out / "universal.nc"), args.out)
     figure = args.out / "universal_map.png"
-    _write(lambda: draw_universal_map(dataset).savefig(figure, dpi=DPI, facecolor="white",
-                                                       metadata={"Software": None}), args.out)
+    def draw() -> None:
+        with replacing(figure) as temporary:
+            draw_universal_map(dataset).savefig(temporary, format="png", dpi=DPI, facecolor="white",
+                                                metadata={"Software": None})
+
+    _write(draw, args.out)
     print(f"cube: {cube}")
     print(f"figure: {figure}")
     print("In these units a dive below the target pays above v_inf / v_c = sqrt(2) (two_burn) and above "
