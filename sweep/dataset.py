@@ -307,23 +307,24 @@ def write_dataset(dataset: xr.Dataset, path: str | Path, compression: int = 0,
         raise ValueError(f"compression must be a zlib level 0-9, got {compression!r}")
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    try:
-        with replacing(path) as temporary:
-            try:
-                if stream is None:
-                    dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4",
-                                      encoding=_encoding(dataset, compression))
-                else:
-                    _write_streamed(dataset, stream, temporary, compression, speeds_per_chunk)
-            except RuntimeError:  # measure the disk before the partial file goes
-                free = shutil.disk_usage(path.parent).free
-                raise
-    except RuntimeError as err:  # netCDF-C reports a full disk as "NetCDF: HDF error", not as an OSError
-        if free < _NEARLY_FULL:
-            raise OSError(errno.ENOSPC, f"No space left on device ({_mib(free)} free; netCDF: {err})", str(path)) \
-                from err
-        raise OSError(errno.EIO, f"netCDF write failed: {err}", str(path)) from err
+    with replacing(path) as temporary:
+        try:
+            if stream is None:
+                dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4",
+                                  encoding=_encoding(dataset, compression))
+            else:
+                _write_streamed(dataset, stream, temporary, compression, speeds_per_chunk)
+        except RuntimeError as err:  # netCDF-C reports a full disk as "NetCDF: HDF error", not as an OSError
+            raise _write_error(err, path) from err
     return path
+
+
+def _write_error(err: RuntimeError, path: Path) -> OSError:
+    """The OSError a failed netCDF write stands for, judged while its partial file still takes space."""
+    free = shutil.disk_usage(path.parent).free
+    if free < _NEARLY_FULL:
+        return OSError(errno.ENOSPC, f"No space left on device ({_mib(free)} free; netCDF: {err})", str(path))
+    return OSError(errno.EIO, f"netCDF write failed: {err}", str(path))
 
 
 _NEARLY_FULL = 64 << 20  # bytes free below which a failed write is taken for a full disk

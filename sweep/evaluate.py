@@ -245,14 +245,15 @@ def estimate_memory(config: SweepConfig, workers: int | None = None,
     return _bytes([*held.values(), *finite_layout(config).values()]) + (workers + 2) * _bytes(chunk)
 
 
-def _allocate(config: SweepConfig, names, bodies: int | None = None, speeds: int | None = None) -> SweepArrays:
+def _allocate(config: SweepConfig, names, bodies: int | None = None, speeds: int | None = None,
+              plane: bool = False) -> SweepArrays:
     """
     The arrays ``names`` allocated (for the grid, or one chunk), with the plane-change arrays if
-    ``names`` are the streamed ones and the grid has that axis; the other fields are left None.
+    ``plane`` and the grid has that axis; the other fields are left None.
     """
     arrays = SweepArrays(**{name: np.empty(shape, dtype) if name in names else None
                             for name, (shape, dtype) in _layout(config, bodies, speeds).items()})
-    if names == STREAMED and config.plane_change is not None:
+    if plane and config.plane_change is not None:
         arrays.plane = PlaneChangeArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype)
                                             in _plane_layout(config, bodies, speeds).items()})
     return arrays
@@ -406,7 +407,7 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     """
     workers = workers or os.cpu_count() or 1
     plans, out = prepare(config, workers, progress, scheduler, checkpoint)
-    full = _allocate(config, STREAMED)
+    full = _allocate(config, STREAMED, plane=True)
     for name in STREAMED:
         setattr(out, name, getattr(full, name))
     out.plane = full.plane
@@ -438,7 +439,7 @@ def sweep_chunks(config: SweepConfig, plans: list[BodyPlan], workers: int | None
 
     def compute(chunk: Chunk) -> tuple[Chunk, SweepArrays]:
         count = chunk.v_inf_stop - chunk.v_inf_start
-        local = _allocate(config, STREAMED, bodies=1, speeds=count)
+        local = _allocate(config, STREAMED, bodies=1, speeds=count, plane=True)
         _run_chunk(chunk, plans[chunk.body], config, local, 0, slice(0, count))
         return chunk, local
 

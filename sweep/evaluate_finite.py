@@ -264,8 +264,11 @@ def _place(out: FiniteArrays, chunk, result: dict[str, np.ndarray]) -> None:
 
 
 def _run_and_place(out: FiniteArrays, chunk, parent: int, *args) -> None:
-    """A worker's task; skipped once the run that queued it is gone (killed: its worker drains the queue)."""
-    if os.getppid() == parent:
+    """
+    A task of run ``parent`` (its pid), in that process or a worker of it; skipped once the run
+    is gone (killed: its orphaned workers drain the queue without computing).
+    """
+    if parent in (os.getpid(), os.getppid()):
         _place(out, chunk, _run_chunk(*args))
 
 
@@ -411,8 +414,7 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
                     _place(out, work[i], {name: saved[name] for name in saved.files})
 
         loading = loader.submit(load_done)
-        tasks = (delayed(_run_and_place)(out, work[i], os.getpid() if processes > 1 else os.getppid(),
-                                         *arguments(work[i])) for i in todo)
+        tasks = (delayed(_run_and_place)(out, work[i], os.getpid(), *arguments(work[i])) for i in todo)
         for i, _ in zip(todo, track(runner(tasks), len(todo), points * len(todo) // max(len(work), 1),
                                     "finite burns", progress), strict=True):
             if checkpoint is not None:

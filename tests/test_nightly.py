@@ -238,8 +238,10 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
         return FiniteArrays(**{name: np.full(shape, -7.0).astype(dtype)
                                for name, (shape, dtype) in finite_layout(config).items()})
 
+    gone = subprocess.Popen([sys.executable, "-c", "pass"])
+    gone.wait()  # a run that no longer exists
     orphan, child = fresh(), fresh()
-    _run_and_place(orphan, chunk, os.getppid() + 1, *arguments)
+    _run_and_place(orphan, chunk, gone.pid, *arguments)
     assert (orphan.finite_status == -7).all()  # untouched
     _run_and_place(child, chunk, os.getppid(), *arguments)
     assert (child.finite_status[:, 0, chunk.v_inf_start:chunk.v_inf_stop] != -7).all()

@@ -52,7 +52,6 @@ BARE = """
 import json, resource, sys, time
 import netCDF4, numpy as np
 from sweep import build_dataset, parse_config
-from sweep.dataset import _chunk_variables
 from sweep.evaluate import STREAMED, STREAM_CHUNK_POINTS, add_placeholders, prepare
 from sweep.grid import chunks
 config = parse_config(sys.stdin.read(), "<bench>")
