@@ -19,16 +19,18 @@ from pathlib import Path
 
 import xarray as xr
 
-from sweep import __version__, run_to_file
 from sweep.atomic import replacing
 from sweep.catalog import catalog
 from sweep.config import load_config
-from sweep.dataset import fingerprint, write_dataset
+from sweep.cube.conventions import fingerprint
+from sweep.cube.netcdf import write_dataset
+from sweep.engine.impulsive import estimate_bytes, estimate_memory
 from sweep.errors import SweepError
-from sweep.evaluate import estimate_bytes, estimate_memory
 from sweep.lock import output_lock
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.summary import answers, summary_tables, write_summary
+from sweep.pipeline import run_to_file
+from sweep.report.summary import answers, summary_tables, write_summary
+from sweep.version import __version__
 
 __all__ = ["main"]
 
@@ -207,7 +209,7 @@ def _up_to_date(cube: Path, config) -> bool:
 
 
 def _write_figures(dataset: xr.Dataset, folder: Path) -> list[Path]:
-    from sweep.plots import write_figures  # here, not above: matplotlib loads only for commands that draw
+    from sweep.report.figures import write_figures  # here, not above: matplotlib loads only for commands that draw
 
     return write_figures(dataset, folder)
 
@@ -308,7 +310,7 @@ def _plot(args: argparse.Namespace) -> int:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from sweep.compare import compare_cubes, render_drift
+    from sweep.report.compare import compare_cubes, render_drift
 
     if not args.tolerance >= 0:
         raise SweepError(f"--tolerance must be >= 0, got {args.tolerance!r}")
@@ -321,7 +323,7 @@ def _compare(args: argparse.Namespace) -> int:
 def _universal(args: argparse.Namespace) -> int:
     import numpy as np
 
-    from sweep.plots import DPI, draw_universal_map
+    from sweep.report.figures import DPI, draw_universal_map
     from sweep.universal import universal_dataset
 
     if not 0 < args.speed_ratio_max <= 100:

@@ -10,6 +10,7 @@ import time
 from contextlib import contextmanager
 from pathlib import Path
 
+from sweep.engine.processes import alive
 from sweep.errors import SweepError
 
 __all__ = ["LockError", "output_lock"]
@@ -20,16 +21,6 @@ logger = logging.getLogger(__name__)
 
 class LockError(SweepError):
     """Another live capsweep process holds the output folder."""
-
-
-def alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:  # exists, owned by someone else
-        return True
-    return True
 
 
 @contextmanager

@@ -16,9 +16,9 @@ from datetime import UTC, datetime
 import numpy as np
 import xarray as xr
 
-from sweep import __version__
-from sweep.dataset import CAUTION
-from sweep.strategies import STRATEGIES, Geometry, pick_best, strategy_names
+from sweep.cube.conventions import CAUTION
+from sweep.model.strategies import STRATEGIES, Geometry, pick_best, strategy_names
+from sweep.version import __version__
 
 __all__ = ["DEFAULT_APOAPSIS_RATIOS", "universal_costs", "universal_dataset"]
 

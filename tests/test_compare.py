@@ -6,7 +6,7 @@ import numpy as np
 
 from sweep import parse_config, run, write_dataset
 from sweep.cli import main
-from sweep.compare import compare_cubes
+from sweep.report.compare import compare_cubes
 from tests.conftest import SMALL_CONFIG
 
 

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from sweep import parse_config, run
-from sweep.strategies import STATUSES
+from sweep.model.statuses import STATUSES
 
 CODE = {status.name: code for code, status in enumerate(STATUSES)}
 

@@ -8,9 +8,10 @@ import numpy as np
 import pytest
 
 from sweep import parse_config
-from sweep.evaluate import evaluate
+from sweep.engine.impulsive import evaluate
+from sweep.model.statuses import STATUSES
+from sweep.model.strategies import NO_STRATEGY, strategy_names
 from sweep.physics.capture import direct_capture, three_burn_capture, two_burn_capture
-from sweep.strategies import NO_STRATEGY, STATUSES, strategy_names
 
 CODE = {status.name: code for code, status in enumerate(STATUSES)}
 DIRECT, TWO, THREE = (strategy_names().index(n) for n in ("direct", "two_burn", "three_burn"))

@@ -7,8 +7,9 @@ import pytest
 
 from sweep import parse_config, run
 from sweep.cli import main
-from sweep.evaluate import evaluate
-from sweep.strategies import STATUSES, strategy_names
+from sweep.engine.impulsive import evaluate
+from sweep.model.statuses import STATUSES
+from sweep.model.strategies import strategy_names
 from tests.test_evaluate import assert_same_arrays
 
 FINITE_CONFIG = """

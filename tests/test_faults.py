@@ -144,11 +144,11 @@ def test_an_output_folder_that_cannot_be_written(config_file, tmp_path, capsys):
 def test_a_write_that_fails_mid_stream_leaves_the_previous_run_intact(earlier_run, capsys, monkeypatch):
     # netCDF-C reports a full disk as a RuntimeError ("NetCDF: HDF error"): patched in on the
     # second chunk, with the disk made to look full.
-    import sweep.dataset
+    import sweep.cube.netcdf
 
     path, out, before = earlier_run
     _edit(path, "num = 12 }", "num = 13 }")
-    real_chunks, calls = sweep.dataset._chunk_variables, []
+    real_chunks, calls = sweep.cube.netcdf._chunk_variables, []
 
     def failing(arrays):
         calls.append(1)
@@ -157,8 +157,8 @@ def test_a_write_that_fails_mid_stream_leaves_the_previous_run_intact(earlier_ru
         return real_chunks(arrays)
 
     real_usage = shutil.disk_usage
-    monkeypatch.setattr(sweep.dataset, "_chunk_variables", failing)
-    monkeypatch.setattr(sweep.dataset.shutil, "disk_usage", lambda p: real_usage(p)._replace(free=1 << 20))
+    monkeypatch.setattr(sweep.cube.netcdf, "_chunk_variables", failing)
+    monkeypatch.setattr(sweep.cube.netcdf.shutil, "disk_usage", lambda p: real_usage(p)._replace(free=1 << 20))
     capsys.readouterr()
     _rejected(capsys, ["run", str(path), "--out", str(out), "--force"],
               r"small-test\.nc: cannot write output: No space left on device \(1\.0 MiB free; netCDF: NetCDF: HDF "
@@ -214,12 +214,12 @@ def test_an_absurd_grid_is_refused_before_anything_is_allocated(config_file, tmp
 
 
 def test_a_first_run_that_fails_leaves_no_file_at_the_final_path(config_file, tmp_path, capsys, monkeypatch):
-    import sweep.dataset
+    import sweep.cube.netcdf
 
     def failing(arrays):
         raise OSError(5, "Input/output error")
 
-    monkeypatch.setattr(sweep.dataset, "_chunk_variables", failing)
+    monkeypatch.setattr(sweep.cube.netcdf, "_chunk_variables", failing)
     out = tmp_path / "out"
     _rejected(capsys, ["run", str(config_file()), "--out", str(out)], r"cannot write output: Input/output error")
     assert not (out / "small-test.nc").exists() and not list(out.glob(".*.part"))

@@ -76,13 +76,13 @@ def test_progress_lines_and_log_file_without_a_terminal(config_file, tmp_path, c
 
 
 def test_ctrl_c_exits_cleanly_and_leaves_no_lock(config_file, tmp_path, capsys, monkeypatch):
-    import sweep.dataset
+    import sweep.cube.netcdf
 
     out = tmp_path / "out"
     path = config_file()
     assert main(["run", str(path), "--out", str(out), "-q"]) == 0
     earlier = (out / "small-test.nc").read_bytes()
-    chunk_variables = sweep.dataset._chunk_variables
+    chunk_variables = sweep.cube.netcdf._chunk_variables
     written = []
 
     def interrupted_on_the_third_chunk(arrays):
@@ -91,7 +91,7 @@ def test_ctrl_c_exits_cleanly_and_leaves_no_lock(config_file, tmp_path, capsys, 
             raise KeyboardInterrupt
         return chunk_variables(arrays)
 
-    monkeypatch.setattr(sweep.dataset, "_chunk_variables", interrupted_on_the_third_chunk)
+    monkeypatch.setattr(sweep.cube.netcdf, "_chunk_variables", interrupted_on_the_third_chunk)
     capsys.readouterr()
     assert main(["run", str(path), "--out", str(out), "--force"]) == 130
     assert "interrupted; no new cube was written" in capsys.readouterr().err
@@ -104,7 +104,7 @@ def test_finite_burns_on_a_dask_cluster_equal_the_local_run():
     # Independent scheduler: a distributed.LocalCluster (threads, in this process).
     distributed = pytest.importorskip("distributed")
     from sweep import parse_config
-    from sweep.evaluate import evaluate
+    from sweep.engine.impulsive import evaluate
     from tests.test_evaluate import assert_same_arrays
     from tests.test_evaluate_finite import FINITE_CONFIG
 
@@ -146,8 +146,8 @@ def test_resumed_chunks_give_the_same_arrays(tmp_path):
     import shutil
 
     from sweep import parse_config
-    from sweep.evaluate import plan_body
-    from sweep.evaluate_finite import evaluate_finite
+    from sweep.engine.finite import evaluate_finite
+    from sweep.engine.impulsive import plan_body
     from tests.test_evaluate import assert_same_arrays
 
     config = parse_config(RESUME)
@@ -171,7 +171,7 @@ def test_kill_9_then_rerun_gives_the_uninterrupted_cube(tmp_path, seed):
     import time
 
     from sweep import parse_config
-    from sweep.evaluate_finite import finite_chunks
+    from sweep.engine.finite import finite_chunks
     from tests.conftest import cube_contents
 
     config = tmp_path / "resume.toml"
@@ -199,7 +199,7 @@ def test_kill_9_then_rerun_gives_the_uninterrupted_cube(tmp_path, seed):
 def test_a_killed_runs_shared_memory_is_reclaimed_and_live_ones_kept(tmp_path):
     # kill -9 skips all cleanup: its memory-backed folder (capsweep-<pid>-*) would hold RAM until
     # reboot, so the next run removes the folders of processes that are gone.
-    from sweep.evaluate_finite import _remove_stale_shared
+    from sweep.engine.finite import _remove_stale_shared
 
     gone = subprocess.Popen([sys.executable, "-c", "pass"])
     gone.wait()
@@ -219,8 +219,8 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
     import numpy as np
 
     from sweep import parse_config
-    from sweep.evaluate import plan_body
-    from sweep.evaluate_finite import _BodyInputs, _run_and_place, finite_chunks, finite_layout
+    from sweep.engine.finite import _BodyInputs, _run_and_place, finite_chunks, finite_layout
+    from sweep.engine.impulsive import plan_body
     from tests.test_evaluate_finite import FINITE_CONFIG
 
     config = parse_config(FINITE_CONFIG)
@@ -232,7 +232,7 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
     arguments = (body, config.v_inf[chunk.v_inf_start:chunk.v_inf_stop], config.thrust, 320.0 * 9.80665,
                  config.arrival_mass, config.steering)
 
-    from sweep.evaluate_finite import FiniteArrays
+    from sweep.engine.finite import FiniteArrays
 
     def fresh():
         return FiniteArrays(**{name: np.full(shape, -7.0).astype(dtype)

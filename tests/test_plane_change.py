@@ -84,7 +84,7 @@ def test_cli_run_with_plane_change_writes_cf_cube_and_summary_section(config_fil
 
 
 def test_size_estimate_counts_the_plane_change_arrays():
-    from sweep.evaluate import estimate_bytes, evaluate
+    from sweep.engine.impulsive import estimate_bytes, evaluate
 
     config = parse_config(PLANE)
     arrays = evaluate(config, workers=1)

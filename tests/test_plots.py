@@ -11,8 +11,8 @@ from matplotlib.lines import Line2D
 
 from sweep import parse_config, run
 from sweep.cli import main
-from sweep.plots import DPI, draw_figure, figure_files, fill_colour, write_figures
-from sweep.summary import render_summary, write_summary
+from sweep.report.figures import DPI, draw_figure, figure_files, fill_colour, write_figures
+from sweep.report.summary import render_summary, write_summary
 from tests.test_evaluate_finite import FINITE_CONFIG
 
 # PNG specification (W3C / ISO/IEC 15948), section 5.2: the eight signature bytes of every PNG file.

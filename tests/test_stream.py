@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from sweep import build_dataset, parse_config, run, run_to_file, write_dataset
-from sweep.evaluate import STREAMED, add_placeholders, estimate_bytes, prepare, sweep_chunks
+from sweep.engine.impulsive import STREAMED, add_placeholders, estimate_bytes, prepare, sweep_chunks
 from tests.conftest import SMALL_CONFIG, cube_contents
 from tests.test_evaluate_finite import FINITE_CONFIG
 from tests.test_plane_change import PLANE
@@ -124,7 +124,7 @@ def _memory_config(speeds: int):
 def test_memory_estimate_counts_chunks_not_the_grid():
     # Common practice for a streamed writer: the estimate is the held arrays plus the chunks in
     # flight, so multiplying the arrival speeds multiplies the cube, not the estimate.
-    from sweep.evaluate import estimate_memory
+    from sweep.engine.impulsive import estimate_memory
 
     small, large = _memory_config(2_000), _memory_config(8_000)  # cubes of 1.7 and 6.9 GB (not made)
     assert estimate_bytes(large) > 3.9 * estimate_bytes(small)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from sweep.summary import answers, render_summary, summary_tables
+from sweep.report.summary import answers, render_summary, summary_tables
 
 
 def test_summary_reports_what_the_cube_says(small_cube):

@@ -36,7 +36,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 import tests.finite_reference as reference  # noqa: E402
 from sweep.catalog import catalog  # noqa: E402
 from sweep.config import parse_config  # noqa: E402
-from sweep.evaluate import evaluate  # noqa: E402
+from sweep.engine.impulsive import evaluate  # noqa: E402
 from sweep.physics.capture import (  # noqa: E402
     best_intermediate_apoapsis,
     direct_capture,

@@ -36,10 +36,11 @@ import netCDF4
 import numpy as np
 
 from sweep.config import parse_config
-from sweep.dataset import build_dataset, write_dataset
-from sweep.evaluate import evaluate, plan_body
+from sweep.cube.conventions import build_dataset
+from sweep.cube.netcdf import write_dataset
+from sweep.engine.impulsive import evaluate, plan_body
+from sweep.model.strategies import NO_STRATEGY
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.strategies import NO_STRATEGY
 
 BODIES = ("mars", "venus", "moon", "jupiter")
 TARGETS = 50

@@ -39,7 +39,7 @@ ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
 from sweep import parse_config  # noqa: E402
-from sweep.evaluate_finite import finite_chunks  # noqa: E402
+from sweep.engine.finite import finite_chunks  # noqa: E402
 
 TARGET = 0.6  # resumed run / full run, at most
 

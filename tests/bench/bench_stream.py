@@ -52,8 +52,8 @@ BARE = """
 import json, resource, sys, time
 import netCDF4, numpy as np
 from sweep import build_dataset, parse_config
-from sweep.evaluate import STREAMED, STREAM_CHUNK_POINTS, add_placeholders, prepare
-from sweep.grid import chunks
+from sweep.engine.impulsive import STREAMED, STREAM_CHUNK_POINTS, add_placeholders, prepare
+from sweep.engine.grid import chunks
 config = parse_config(sys.stdin.read(), "<bench>")
 dataset = build_dataset(config, add_placeholders(config, prepare(config, workers=2)[1]))
 work = chunks(config.shape, STREAM_CHUNK_POINTS)

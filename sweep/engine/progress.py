@@ -11,7 +11,7 @@ from tqdm.auto import tqdm
 __all__ = ["LOG_EVERY", "track"]
 
 LOG_EVERY = 10.0  # s between progress log lines when there is no terminal
-logger = logging.getLogger("sweep.progress")
+logger = logging.getLogger("sweep.engine.progress")
 
 
 def track(items: Iterable, total: int, points: int, label: str, bar: bool) -> Iterator:

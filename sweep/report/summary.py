@@ -13,7 +13,7 @@ import pandas as pd
 import xarray as xr
 
 from sweep.atomic import replacing
-from sweep.strategies import CROSSOVER_VARIABLES, cube_labels
+from sweep.model.strategies import CROSSOVER_VARIABLES, cube_labels
 
 __all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
 
@@ -384,10 +384,10 @@ def write_summary(dataset: xr.Dataset, folder: str | Path) -> list[Path]:
     """
     Write summary.md and the CSV tables into ``folder``; return the paths written.
 
-    The figures of :func:`sweep.plots.write_figures` already in ``folder`` are linked from
+    The figures of :func:`sweep.report.figures.write_figures` already in ``folder`` are linked from
     summary.md (write them first); missing ones are left out.
     """
-    from sweep.plots import figure_files  # here, not above: matplotlib loads only when a summary is written
+    from sweep.report.figures import figure_files  # here, not above: matplotlib loads only when a summary is written
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)

@@ -1,6 +1,6 @@
 """PNG figures of where each strategy wins, drawn from a cube alone.
 
-Like :mod:`sweep.summary`, nothing here recomputes physics: every cell, line and contour is read
+Like :mod:`sweep.report.summary`, nothing here recomputes physics: every cell, line and contour is read
 from the Dataset, so an old ``.nc`` file draws the same way it did when it was written. Figures
 are bare :class:`matplotlib.figure.Figure` objects on the Agg canvas: no pyplot, no global
 backend switch, no display needed.
@@ -39,7 +39,7 @@ from matplotlib.patches import Patch
 from matplotlib.ticker import FixedLocator, FuncFormatter, LogLocator, MaxNLocator, NullLocator
 
 from sweep.atomic import replacing
-from sweep.strategies import CROSSOVER_VARIABLES, FINITE_CROSSOVER_VARIABLES, cube_labels
+from sweep.model.strategies import CROSSOVER_VARIABLES, FINITE_CROSSOVER_VARIABLES, cube_labels
 
 __all__ = ["DPI", "STRATEGY_COLOURS", "draw_figure", "figure_files", "fill_colour", "write_figures"]
 

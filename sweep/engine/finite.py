@@ -23,13 +23,14 @@ import numpy as np
 from joblib import Parallel, delayed
 
 from sweep.config import SweepConfig
+from sweep.engine.grid import chunks
+from sweep.engine.processes import alive
+from sweep.engine.progress import track
 from sweep.errors import SweepError
-from sweep.grid import chunks
-from sweep.lock import alive
+from sweep.model.statuses import STATUSES
+from sweep.model.strategies import CHALLENGERS, DIRECT, STRATEGIES, Geometry, pick_best
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.progress import track
-from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, Geometry, pick_best
 
 __all__ = ["FiniteArrays", "evaluate_finite", "finite_chunks", "finite_layout"]
 
@@ -47,7 +48,7 @@ _MIN_CHUNKS = 16  # finite-burn chunks per sweep at least, where the grid has th
 
 @dataclass
 class FiniteArrays:
-    """Finite-burn results in cube order, with the thrust axis last (units in sweep.dataset)."""
+    """Finite-burn results in cube order, with the thrust axis last (units in sweep.cube.conventions)."""
 
     finite_delta_v: np.ndarray
     finite_burn_delta_v: np.ndarray

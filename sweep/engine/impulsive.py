@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import logging
 import math
-import os
 from collections import deque
 from collections.abc import Iterator
 from concurrent.futures import Future, ThreadPoolExecutor
@@ -20,8 +19,12 @@ import numpy as np
 from joblib import Parallel, delayed
 
 from sweep.config import SweepConfig
-from sweep.evaluate_finite import FiniteArrays, evaluate_finite, finite_layout
-from sweep.grid import Chunk, chunks, speeds_per_chunk
+from sweep.engine.finite import FiniteArrays, evaluate_finite, finite_layout
+from sweep.engine.grid import Chunk, chunks, speeds_per_chunk
+from sweep.engine.processes import worker_count
+from sweep.engine.progress import track
+from sweep.model.statuses import STATUSES
+from sweep.model.strategies import CHALLENGERS, DIRECT, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
     best_plane_change_split,
@@ -34,8 +37,6 @@ from sweep.physics.capture import (
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed, semi_major_axis_from_period
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.progress import track
-from sweep.strategies import CHALLENGERS, DIRECT, STATUSES, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
 
 __all__ = ["STREAMED", "STREAM_CHUNK_POINTS", "BodyPlan", "SweepArrays", "add_placeholders", "estimate_bytes",
            "estimate_memory", "evaluate", "plan_body", "prepare", "sweep_chunks"]
@@ -65,7 +66,7 @@ class BodyPlan:
 @dataclass
 class SweepArrays:
     """
-    Plain arrays of a sweep, in cube dimension order; units as named in :mod:`sweep.dataset`.
+    Plain arrays of a sweep, in cube dimension order; units as named in :mod:`sweep.cube.conventions`.
     One chunk's arrays (:func:`sweep_chunks`) hold only the :data:`STREAMED` fields and ``plane``.
     """
 
@@ -237,7 +238,7 @@ def estimate_memory(config: SweepConfig, workers: int | None = None,
     computed ahead, the one being written, one being made). Kernel temporaries come on top,
     a few chunks' worth.
     """
-    workers = workers or os.cpu_count() or 1
+    workers = worker_count(workers)
     held = {name: entry for name, entry in _layout(config).items() if name not in STREAMED}
     speeds = min(speeds_per_chunk(config.shape, points_per_chunk), config.shape[1])
     chunk = [*(entry for name, entry in _layout(config, 1, speeds).items() if name in STREAMED),
@@ -355,7 +356,7 @@ def prepare(config: SweepConfig, workers: int | None = None, progress: bool = Fa
     speeds, the free-periapsis reference and, with a thrust axis, the finite burns. The
     returned arrays leave the :data:`STREAMED` fields and ``plane`` None.
     """
-    workers = workers or os.cpu_count() or 1
+    workers = worker_count(workers)
     out = _allocate(config, set(_layout(config)) - set(STREAMED))
     threads = Parallel(n_jobs=min(workers, max(len(config.bodies), 1)), backend="threading")
     plans = threads(delayed(plan_body)(body, config) for body in config.bodies)
@@ -405,7 +406,7 @@ def evaluate(config: SweepConfig, workers: int | None = None, progress: bool = F
     --------
     sweep_chunks : the same per-point arrays one chunk at a time, for grids larger than memory.
     """
-    workers = workers or os.cpu_count() or 1
+    workers = worker_count(workers)
     plans, out = prepare(config, workers, progress, scheduler, checkpoint)
     full = _allocate(config, STREAMED, plane=True)
     for name in STREAMED:
@@ -432,7 +433,7 @@ def sweep_chunks(config: SweepConfig, plans: list[BodyPlan], workers: int | None
     writer) holds the threads back rather than letting results pile up. The values are those of
     :func:`evaluate`, bit for bit.
     """
-    workers = workers or os.cpu_count() or 1
+    workers = worker_count(workers)
     work = chunks(config.shape, points_per_chunk)
     logger.info("evaluating %d points in %d chunks on %d threads, streamed", int(np.prod(config.shape)), len(work),
                 workers)
