@@ -9,7 +9,7 @@ import pytest
 import xarray as xr
 
 from sweep.cli import main
-from sweep.version import __version__, open_cube, parse_config, run
+from sweep import __version__, open_cube, parse_config, run
 
 
 def test_run_writes_cube_and_summary_that_round_trip(config_file, tmp_path, capsys):
