@@ -14,11 +14,9 @@ from sweep.engine.grid import DIMENSIONS
 from sweep.engine.impulsive import SweepArrays
 from sweep.model.statuses import STATUSES
 from sweep.model.strategies import (
-    CHALLENGERS,
-    CROSSOVER_VARIABLES,
-    FINITE_CROSSOVER_VARIABLES,
     NO_STRATEGY,
     STRATEGIES,
+    challengers,
     strategy_names,
 )
 from sweep.physics.rocket import STANDARD_GRAVITY
@@ -117,9 +115,8 @@ def _finite_variables(config: SweepConfig, finite, names: list[str]) -> tuple[di
                                          "finite-burn delta-v of direct minus that of the best strategy"),
     }
     v_min, v_max = float(config.v_inf.min()), float(config.v_inf.max())
-    for index, strategy in enumerate(CHALLENGERS):
-        challenger = names[strategy]
-        name = FINITE_CROSSOVER_VARIABLES[challenger]
+    for index, (_, strategy) in enumerate(challengers()):
+        challenger, name = strategy.name, strategy.finite_crossover_variable
         data[name] = (("body", "target_altitude", "periapsis_altitude", "thrust"), finite.finite_crossover_v_inf[index],
                       _attrs("km s-1", f"arrival speed at which {challenger} and direct need the same finite-burn "
                              "delta-v", valid_min=v_min, valid_max=v_max,
@@ -194,9 +191,8 @@ def build_dataset(config: SweepConfig, arrays: SweepArrays) -> xr.Dataset:
             comment="NaN where three_burn is infeasible")),
     }
     low, high = config.crossover_range
-    for index, strategy in enumerate(CHALLENGERS):
-        challenger = names[strategy]
-        name = CROSSOVER_VARIABLES[challenger]
+    for index, (_, strategy) in enumerate(challengers()):
+        challenger, name = strategy.name, strategy.crossover_variable
         data_vars[name] = (("body", "target_altitude", "periapsis_altitude"), arrays.crossover_v_inf[index], _attrs(
             "km s-1", f"arrival speed at which {challenger} and direct need the same delta-v",
             valid_min=low, valid_max=high,

@@ -28,7 +28,7 @@ from sweep.engine.processes import alive
 from sweep.engine.progress import track
 from sweep.errors import SweepError
 from sweep.model.statuses import STATUSES
-from sweep.model.strategies import CHALLENGERS, DIRECT, STRATEGIES, Geometry, pick_best
+from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, max_burns, pick_best
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
 
@@ -39,7 +39,6 @@ logger = logging.getLogger(__name__)
 _KM = 1.0e3  # m per km
 _CODE = {status.name: code for code, status in enumerate(STATUSES)}
 _OUTCOME_CODE = np.array([0] + [_CODE[name] for name in OUTCOMES[1:]], dtype=np.int8)
-_BURNS = max(strategy.burns for strategy in STRATEGIES)
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
 _ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
 _BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
@@ -71,7 +70,7 @@ def finite_layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]
         return {}
     shape = config.finite_shape
     count = len(STRATEGIES)
-    per_burn = ((count, _BURNS, *shape), np.float64)
+    per_burn = ((count, max_burns(), *shape), np.float64)
     per_strategy = ((count, *shape), np.float64)
     nbody, _, ntarget, nperiapsis, nthrust = shape
     return {
@@ -87,7 +86,7 @@ def finite_layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]
         "finite_status": ((count, *shape), np.int8),
         "finite_best_strategy": (shape, np.int8),
         "finite_saving_over_direct": (shape, np.float64),
-        "finite_crossover_v_inf": ((len(CHALLENGERS), nbody, ntarget, nperiapsis, nthrust), np.float64),
+        "finite_crossover_v_inf": ((len(challengers()), nbody, ntarget, nperiapsis, nthrust), np.float64),
     }
 
 
@@ -118,7 +117,7 @@ def _fly(strategy, gm, radius, soi, geometry: Geometry, speed, thrust, exhaust_s
 def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steering) -> dict[str, np.ndarray]:
     """All strategies for one body, a run of arrival speeds, every target, periapsis and thrust."""
     shape = (speeds_km.size, body.target_radius.shape[0], body.periapsis_radius.shape[1], thrust.size)
-    out = {name: np.full((len(STRATEGIES), _BURNS, *shape), np.nan) for name in (
+    out = {name: np.full((len(STRATEGIES), max_burns(), *shape), np.nan) for name in (
         "finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass",
         "reached_periapsis_altitude", "reached_apoapsis_altitude")}
     out.update({name: np.full((len(STRATEGIES), *shape), np.nan) for name in (
@@ -139,7 +138,7 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
         flown = result.outcome == 0
         out["finite_status"][s].ravel()[ok] = _OUTCOME_CODE[result.outcome]
         remaining = np.full(ok.size, float(mass))
-        for k in range(_BURNS):
+        for k in range(max_burns()):
             values = dict.fromkeys(("finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass"),
                                    np.zeros(ok.size))
             if k < strategy.burns:
@@ -175,7 +174,7 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteAr
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
     v_grid = config.v_inf * _KM
     arrays.finite_crossover_v_inf[...] = np.nan
-    for slot, challenger in enumerate(CHALLENGERS):
+    for slot, (challenger, _) in enumerate(challengers()):
         gap = arrays.finite_delta_v[challenger] - arrays.finite_delta_v[DIRECT]  # (B, V, T, P, F)
         flips = (np.sign(gap[:, :-1]) * np.sign(gap[:, 1:]) < 0)
         first = np.argmax(flips, axis=1)  # (B, T, P, F)

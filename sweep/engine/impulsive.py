@@ -24,7 +24,7 @@ from sweep.engine.grid import Chunk, chunks, speeds_per_chunk
 from sweep.engine.processes import worker_count
 from sweep.engine.progress import track
 from sweep.model.statuses import STATUSES
-from sweep.model.strategies import CHALLENGERS, DIRECT, STRATEGIES, THREE_BURN, TWO_BURN, Geometry, pick_best
+from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, pick_best, strategy_names
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
     best_plane_change_split,
@@ -164,7 +164,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     status = np.stack(status)
     low, high = (speed * _KM for speed in config.crossover_range)
     crossover = []
-    for index in CHALLENGERS:
+    for index, _ in challengers():
         speed = equal_cost_v_inf(
             body.gm, STRATEGIES[index].first_burn_radius(geometry), target_radius,
             constants[DIRECT] - constants[index],
@@ -195,7 +195,7 @@ def _layout(config: SweepConfig, bodies: int | None = None, speeds: int | None =
         "saving_over_direct": per_point,
         "propellant_saving": per_point,
         "intermediate_apoapsis_altitude": per_point,
-        "crossover_v_inf": ((len(CHALLENGERS), nbody, ntarget, nperiapsis), np.float64),
+        "crossover_v_inf": ((len(challengers()), nbody, ntarget, nperiapsis), np.float64),
         "apoapsis_bound": ((nbody,), np.float64),
         "sphere_of_influence": ((nbody,), np.float64),
         "hill_radius": ((nbody,), np.float64),
@@ -310,7 +310,7 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, config: SweepConfig, out: SweepArra
     out.best_strategy[b, speeds] = best
     out.saving_over_direct[b, speeds] = saving
     out.propellant_saving[b, speeds] = propellant_saving
-    three_burn_ok = plan.status[THREE_BURN] == 0
+    three_burn_ok = plan.status[strategy_names().index("three_burn")] == 0
     out.intermediate_apoapsis_altitude[b, speeds] = np.where(
         three_burn_ok, (plan.geometry.apoapsis_radius - config.bodies[chunk.body].radius) / _KM, np.nan
     )
@@ -342,7 +342,7 @@ def _plane_change_chunk(speed, plan: BodyPlan, config: SweepConfig, out: PlaneCh
     for index, strategy in enumerate(STRATEGIES):
         total = np.broadcast_to(sum(with_turn[strategy.name].burns), delta_v.shape[1:])
         delta_v[index] = np.where((plan.status[index] == 0)[None, :, :, None], total, np.nan)
-    out.two_burn_first_share[b, speeds] = np.where((plan.status[TWO_BURN] == 0)[None, :, :, None],
+    out.two_burn_first_share[b, speeds] = np.where((plan.status[strategy_names().index("two_burn")] == 0)[None, :, :, None],
                                                    np.degrees(split), np.nan)
     best, saving, _ = pick_best(delta_v, delta_v, DIRECT)
     out.best_strategy[b, speeds] = best

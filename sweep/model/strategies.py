@@ -1,4 +1,4 @@
-"""The capture strategies and the feasibility codes, by name: what the cube's labels mean."""
+"""The strategy registry: every capture sequence by name, with all that differs between them."""
 
 from __future__ import annotations
 
@@ -8,22 +8,33 @@ from typing import NamedTuple
 
 import numpy as np
 
-from sweep.physics.capture import Maneuver, direct_capture, three_burn_capture, two_burn_capture
+from sweep.physics.capture import (
+    Maneuver,
+    best_plane_change_split,
+    direct_capture,
+    three_burn_capture,
+    two_burn_capture,
+)
 
 __all__ = [
-    "CHALLENGERS",
-    "CROSSOVER_VARIABLES",
     "DIRECT",
-    "FINITE_CROSSOVER_VARIABLES",
     "NO_STRATEGY",
-    "THREE_BURN",
-    "TWO_BURN",
+    "OKABE_ITO",
+    "REFERENCE",
     "STRATEGIES",
     "Geometry",
     "Strategy",
+    "Turn",
+    "challengers",
+    "crossover_variable",
     "cube_labels",
+    "lookup",
+    "max_burns",
     "pick_best",
+    "register",
+    "strategy_colour",
     "strategy_names",
+    "unregister",
 ]
 
 NO_STRATEGY = -1  # best strategy where no strategy is feasible
@@ -44,22 +55,67 @@ class Geometry(NamedTuple):
         return self.target_radius if self.target_apoapsis is None else self.target_apoapsis
 
 
+# Okabe and Ito (2008), "Color Universal Design": distinguishable with the common colour-vision deficiencies.
+OKABE_ITO = {
+    "orange": "#E69F00", "sky_blue": "#56B4E9", "bluish_green": "#009E73", "yellow": "#F0E442",
+    "blue": "#0072B2", "vermillion": "#D55E00", "reddish_purple": "#CC79A7", "black": "#000000",
+}
+
+
+class Turn(NamedTuple):
+    """A strategy's sequence with a plane change: its burns, and named extra per-point results."""
+
+    maneuver: Maneuver
+    extras: dict[str, np.ndarray]  # cube variable name -> values, e.g. how a turn was split
+
+
 @dataclass(frozen=True)
 class Strategy:
-    """A capture sequence: its kernel, where its first burn is made, and what it means."""
+    """
+    A capture sequence: everything that differs from one strategy to the next. The engine, the
+    cube, the reports and the figures loop over :data:`STRATEGIES`; a new strategy is one
+    entry (and its kernels in :mod:`sweep.physics`).
+    """
 
     name: str
     description: str
     burns: int
     kernel: Callable[[np.ndarray, Geometry], Maneuver]
     first_burn_radius: Callable[[Geometry], np.ndarray]
-    uses_periapsis: bool
+    uses_periapsis: bool  # feasibility: the grid periapsis must be safe and inside the bound
     # For finite burns: where each burn is made, and the apsides of the orbit it aims for.
     burn_radii: Callable[[Geometry], list[np.ndarray]]
     orbits: Callable[[Geometry], list[tuple[np.ndarray, np.ndarray]]]
+    # The sequence with a plane change ``angle`` (radians) made as this strategy makes it;
+    # ``how`` says so in the cube's metadata.
+    turn: Callable[[np.ndarray, Geometry, np.ndarray], Turn]
+    turn_how: str
+    colour: str  # figures: fills and lines
+    line_style: tuple[str, str] = ("-", "o")  # figures: its crossover lines (dash pattern, marker)
+    # Cube variables holding its equal-cost arrival speed against the reference (direct);
+    # None: "<name>_crossover_v_inf" and "finite_<name>_crossover_v_inf".
+    crossover_name: str | None = None
+    finite_crossover_name: str | None = None
+
+    @property
+    def crossover_variable(self) -> str:
+        return self.crossover_name or f"{self.name}_crossover_v_inf"
+
+    @property
+    def finite_crossover_variable(self) -> str:
+        return self.finite_crossover_name or f"finite_{self.name}_crossover_v_inf"
 
 
-STRATEGIES: tuple[Strategy, ...] = (
+def _two_burn_turn(v, g: Geometry, angle) -> Turn:
+    split = best_plane_change_split(v, g.gm, g.periapsis_radius, g.target_radius, angle, g.target_apoapsis)
+    maneuver = two_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius, angle, split,
+                                target_apoapsis=g.target_apoapsis)
+    return Turn(maneuver, {"two_burn_first_plane_change": np.degrees(split)})
+
+
+# The registry, in cube order (the index along the ``strategy`` dimension). The reference every
+# saving and crossover is measured against comes first.
+STRATEGIES: list[Strategy] = [
     Strategy(
         name="direct",
         description="one burn at a periapsis placed at the target radius, hyperbola to circle",
@@ -69,6 +125,9 @@ STRATEGIES: tuple[Strategy, ...] = (
         uses_periapsis=False,
         burn_radii=lambda g: [g.target_radius],
         orbits=lambda g: [(g.target_radius, g.target_far)],
+        turn=lambda v, g, angle: Turn(direct_capture(v, g.gm, g.target_radius, angle, g.target_apoapsis), {}),
+        turn_how="with its one burn",
+        colour=OKABE_ITO["blue"],
     ),
     Strategy(
         name="two_burn",
@@ -81,6 +140,12 @@ STRATEGIES: tuple[Strategy, ...] = (
         uses_periapsis=True,
         burn_radii=lambda g: [g.periapsis_radius, g.target_far],
         orbits=lambda g: [(g.periapsis_radius, g.target_far), (g.target_radius, g.target_far)],
+        turn=_two_burn_turn,
+        turn_how="split between its burns as cheapest (scan and golden section)",
+        colour=OKABE_ITO["orange"],
+        line_style=("--", "o"),
+        crossover_name="crossover_v_inf",
+        finite_crossover_name="finite_crossover_v_inf",
     ),
     Strategy(
         name="three_burn",
@@ -95,8 +160,31 @@ STRATEGIES: tuple[Strategy, ...] = (
         burn_radii=lambda g: [g.periapsis_radius, g.apoapsis_radius, g.target_radius],
         orbits=lambda g: [(g.periapsis_radius, g.apoapsis_radius), (g.target_radius, g.apoapsis_radius),
                           (g.target_radius, g.target_far)],
+        turn=lambda v, g, angle: Turn(three_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius,
+                                                         g.apoapsis_radius, angle, g.target_apoapsis), {}),
+        turn_how="with the apoapsis burn",
+        colour=OKABE_ITO["bluish_green"],
+        line_style=(":", "s"),
     ),
-)
+]
+REFERENCE = "direct"  # the strategy every saving and crossover is measured against
+DIRECT = 0  # its index: always first
+# Colours for strategies a cube names but this registry does not (cubes of other versions).
+SPARE_COLOURS = (OKABE_ITO["reddish_purple"], OKABE_ITO["sky_blue"], OKABE_ITO["yellow"])
+
+
+def register(strategy: Strategy) -> None:
+    """Add ``strategy`` to the registry (last in cube order); its name must be new."""
+    if strategy.name in strategy_names():
+        raise ValueError(f"strategy {strategy.name!r} is registered already")
+    STRATEGIES.append(strategy)
+
+
+def unregister(name: str) -> None:
+    """Remove strategy ``name`` (not the reference)."""
+    if name == REFERENCE:
+        raise ValueError(f"the reference strategy {REFERENCE!r} cannot be removed")
+    STRATEGIES[:] = [s for s in STRATEGIES if s.name != name]
 
 
 def strategy_names() -> list[str]:
@@ -104,14 +192,33 @@ def strategy_names() -> list[str]:
     return [strategy.name for strategy in STRATEGIES]
 
 
-DIRECT = strategy_names().index("direct")  # the reference every saving and crossover is measured against
-TWO_BURN = strategy_names().index("two_burn")
-THREE_BURN = strategy_names().index("three_burn")
-CHALLENGERS = tuple(i for i, name in enumerate(strategy_names()) if name != "direct")  # crossover_v_inf order
+def challengers() -> list[tuple[int, Strategy]]:
+    """(cube index, entry) of every strategy measured against the reference, in cube order."""
+    return [(i, s) for i, s in enumerate(STRATEGIES) if s.name != REFERENCE]
 
-# Cube variables holding each challenger's equal-cost arrival speed against direct.
-CROSSOVER_VARIABLES = {"two_burn": "crossover_v_inf", "three_burn": "three_burn_crossover_v_inf"}
-FINITE_CROSSOVER_VARIABLES = {"two_burn": "finite_crossover_v_inf", "three_burn": "finite_three_burn_crossover_v_inf"}
+
+def max_burns() -> int:
+    """Burns of the longest sequence: the length of the cube's ``burn`` axis."""
+    return max(s.burns for s in STRATEGIES)
+
+
+def lookup(name: str) -> Strategy | None:
+    """The registry entry called ``name``; None for a name this version does not know."""
+    return next((s for s in STRATEGIES if s.name == name), None)
+
+
+def crossover_variable(name: str, finite: bool = False) -> str:
+    """The cube variable of strategy ``name``'s crossover speed (registered or not)."""
+    entry = lookup(name)
+    if entry is not None:
+        return entry.finite_crossover_variable if finite else entry.crossover_variable
+    return f"finite_{name}_crossover_v_inf" if finite else f"{name}_crossover_v_inf"
+
+
+def strategy_colour(name: str, index: int = 0) -> str:
+    """The figure colour of strategy ``name``; a spare one for names this registry lacks."""
+    entry = lookup(name)
+    return entry.colour if entry is not None else SPARE_COLOURS[index % len(SPARE_COLOURS)]
 
 
 def cube_labels(dataset) -> tuple[list[str], list[str]]:

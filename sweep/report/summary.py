@@ -13,7 +13,7 @@ import pandas as pd
 import xarray as xr
 
 from sweep.atomic import replacing
-from sweep.model.strategies import CROSSOVER_VARIABLES, cube_labels
+from sweep.model.strategies import crossover_variable, cube_labels
 
 __all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
 
@@ -208,7 +208,8 @@ def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, share
         index = {name: i for i, name in enumerate(cube_labels(dataset)[1])}
         delta_v = dataset["delta_v"].values
         phrases = []
-        for name, variable in CROSSOVER_VARIABLES.items():
+        for name in cube_labels(dataset)[1][1:]:
+            variable = crossover_variable(name)
             cross = dataset[variable].values[b, t, p]
             attrs = dataset[variable].attrs
             searched = f"{attrs.get('valid_min')} to {attrs.get('valid_max')} km/s"

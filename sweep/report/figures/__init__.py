@@ -39,9 +39,9 @@ from matplotlib.patches import Patch
 from matplotlib.ticker import FixedLocator, FuncFormatter, LogLocator, MaxNLocator, NullLocator
 
 from sweep.atomic import replacing
-from sweep.model.strategies import CROSSOVER_VARIABLES, FINITE_CROSSOVER_VARIABLES, cube_labels
+from sweep.model.strategies import crossover_variable, cube_labels, lookup, strategy_colour
 
-__all__ = ["DPI", "STRATEGY_COLOURS", "draw_figure", "figure_files", "fill_colour", "write_figures"]
+__all__ = ["DPI", "draw_figure", "figure_files", "fill_colour", "write_figures"]
 
 DPI = 120
 CAPTION = "preliminary patched-conic estimates"
@@ -51,18 +51,9 @@ _MAX_THRUST_PANELS = 4  # finite winner map: one column per thrust level (plus t
 _MAX_FINITE_ROWS = 3  # finite winner map: one row per periapsis altitude
 _MAX_PLANE_PANELS = 4  # plane-change winner map: one panel per plane-change angle
 
-# Okabe and Ito (2008), "Color Universal Design": distinguishable with the common colour-vision deficiencies.
-_OKABE_ITO = {
-    "orange": "#E69F00", "sky_blue": "#56B4E9", "bluish_green": "#009E73", "yellow": "#F0E442",
-    "blue": "#0072B2", "vermillion": "#D55E00", "reddish_purple": "#CC79A7", "black": "#000000",
-}
-STRATEGY_COLOURS = {"direct": _OKABE_ITO["blue"], "two_burn": _OKABE_ITO["orange"],
-                    "three_burn": _OKABE_ITO["bluish_green"]}
-_SPARE_COLOURS = (_OKABE_ITO["reddish_purple"], _OKABE_ITO["sky_blue"], _OKABE_ITO["yellow"])
 NONE_COLOUR = "#B4B4B4"  # no feasible strategy: neutral grey, darker than every fill tint below
 _TINT = 0.55  # map fills: this share of the strategy colour, the rest white, so lines and labels on top read
 _CONTOUR_COLOUR = "#262626"
-_CROSSOVER_STYLE = {"two_burn": ("--", "o"), "three_burn": (":", "s")}
 _V_INF_LABEL = "arrival speed $v_\\infty$, km/s"
 _TARGET_LABEL = "target orbit altitude, km"
 _TARGET_PERIAPSIS_LABEL = "target orbit periapsis altitude, km"  # elliptical targets
@@ -111,7 +102,7 @@ def figure_files(dataset: xr.Dataset) -> list[tuple[str, str, str]]:
 # ---- colours and small helpers -----------------------------------------------------------------
 
 def _strategy_colour(name: str, index: int) -> str:
-    return STRATEGY_COLOURS.get(name, _SPARE_COLOURS[index % len(_SPARE_COLOURS)])
+    return strategy_colour(name, index)
 
 
 def fill_colour(name: str | None, index: int = 0) -> tuple[float, float, float]:
@@ -263,7 +254,7 @@ class _MapAxes:
         """Equal-cost speeds (per target) as lines with markers; off the axis: an arrow at the edge and the value."""
         low, high = self.x_edges[0], self.x_edges[-1]
         for name, speeds in values.items():
-            line, marker = _CROSSOVER_STYLE.get(name, ("-.", "D"))
+            line, marker = _line_style(name)
             colour = _dark(name, self.names.index(name))
             if np.isfinite(speeds).any():
                 self.shown.add(name)
@@ -302,7 +293,7 @@ class _MapAxes:
         handles.append(Patch(facecolor=fill_colour(None), edgecolor="#808080", linewidth=0.5,
                              label="no feasible strategy"))
         for name in [n for n in crossovers if n in self.shown]:
-            line, marker = _CROSSOVER_STYLE.get(name, ("-.", "D"))
+            line, marker = _line_style(name)
             handles.append(Line2D([], [], linestyle=line, marker=marker, color=_dark(name, names.index(name)),
                                   markeredgecolor="white", linewidth=1.8,
                                   label=f"{name} = direct (crossover speed)"))
@@ -339,8 +330,15 @@ def _nice_levels(maximum: float) -> np.ndarray:
     return levels[(levels > 0) & (levels < maximum)]
 
 
-def _crossover_names(dataset: xr.Dataset, names: list[str], variables: dict[str, str]) -> list[str]:
-    return [n for n in names if n in variables and variables[n] in dataset]
+def _line_style(name: str) -> tuple[str, str]:
+    """Dash pattern and marker of strategy ``name``'s crossover lines."""
+    entry = lookup(name)
+    return entry.line_style if entry is not None else ("-.", "D")
+
+
+def _crossover_names(dataset: xr.Dataset, names: list[str], finite: bool = False) -> list[str]:
+    """The challengers whose crossover variable the cube holds."""
+    return [n for n in names[1:] if crossover_variable(n, finite) in dataset]
 
 
 def _winner_figure(dataset: xr.Dataset, b: int) -> Figure:
@@ -372,12 +370,12 @@ def _winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     rows = -(-len(shown) // columns)
     figure = _new_figure(3.7 * columns + 0.9, 2.75 * rows + 1.1, _title(bodies[b], "winner"), f"{which}; {CAPTION}")
     geometry = _MapAxes(dataset["v_inf"].values, targets, names)
-    crossing = _crossover_names(dataset, names, CROSSOVER_VARIABLES)
+    crossing = _crossover_names(dataset, names)
     contoured = False
     for ax, p in zip(_panel_grid(figure, len(shown), columns, _target_label(dataset)), shown, strict=True):
         geometry.draw(ax, best[:, :, p])
         contoured |= geometry.contours(ax, saving[:, :, p], levels)
-        geometry.crossovers(ax, {n: dataset[CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
+        geometry.crossovers(ax, {n: dataset[crossover_variable(n)].values[b, :, p] for n in crossing})
         ax.set_title(f"periapsis {_km(periapses[p])}", fontsize=9.5)
     geometry.legend(figure, crossing, contours=contoured)
     return figure
@@ -401,8 +399,8 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
                          f"{which}; grey: no strategy can be flown (see finite_status in the cube); {CAPTION}, "
                          "constant-thrust burns")
     geometry = _MapAxes(dataset["v_inf"].values, dataset["target_altitude"].values, names)
-    crossing = _crossover_names(dataset, names, CROSSOVER_VARIABLES)
-    finite_crossing = _crossover_names(dataset, names, FINITE_CROSSOVER_VARIABLES)
+    crossing = _crossover_names(dataset, names)
+    finite_crossing = _crossover_names(dataset, names, finite=True)
     labels = [f"periapsis {_km(periapses[p])}\n{_target_label(dataset)}" for p in rows]
     axes = _panel_grid(figure, len(rows) * columns, columns, labels)
     impulsive = dataset["best_strategy"].values[b]  # (V, T, P)
@@ -410,10 +408,10 @@ def _finite_winner_figure(dataset: xr.Dataset, b: int) -> Figure:
     for r, p in enumerate(rows):
         row = axes[r * columns:(r + 1) * columns]
         geometry.draw(row[0], impulsive[:, :, p])
-        geometry.crossovers(row[0], {n: dataset[CROSSOVER_VARIABLES[n]].values[b, :, p] for n in crossing})
+        geometry.crossovers(row[0], {n: dataset[crossover_variable(n)].values[b, :, p] for n in crossing})
         for ax, f in zip(row[1:], levels, strict=True):
             geometry.draw(ax, best[:, :, p, f])
-            geometry.crossovers(ax, {n: dataset[FINITE_CROSSOVER_VARIABLES[n]].values[b, :, p, f]
+            geometry.crossovers(ax, {n: dataset[crossover_variable(n, finite=True)].values[b, :, p, f]
                                      for n in finite_crossing})
         if r == 0:
             row[0].set_title("impulsive burns (reference)", fontsize=9.5)
@@ -525,8 +523,8 @@ def _finite_crossover_figure(dataset: xr.Dataset, b: int) -> Figure:
     periapses = dataset["periapsis_altitude"].values
     thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
     status = dataset["status"].values[:, b]
-    crossing = [n for n in _crossover_names(dataset, names, FINITE_CROSSOVER_VARIABLES)
-                if CROSSOVER_VARIABLES[n] in dataset]
+    crossing = [n for n in _crossover_names(dataset, names, finite=True)
+                if crossover_variable(n) in dataset]
     count = max(len(crossing), 1)
     figure = _new_figure(
         4.6 * count + 0.9, 4.6, _title(bodies[b], "finite_crossover"),
@@ -552,8 +550,8 @@ def _finite_crossover_figure(dataset: xr.Dataset, b: int) -> Figure:
         highest = 0.0
         for t in plotted if name else []:
             p = below[t]
-            finite = dataset[FINITE_CROSSOVER_VARIABLES[name]].values[b, t, p]
-            impulsive = float(dataset[CROSSOVER_VARIABLES[name]].values[b, t, p])
+            finite = dataset[crossover_variable(name, finite=True)].values[b, t, p]
+            impulsive = float(dataset[crossover_variable(name)].values[b, t, p])
             if np.isfinite(impulsive):
                 ax.axhline(impulsive, color=colours[t], linestyle="--", linewidth=1.2, zorder=2)
                 drawn = True
