@@ -221,6 +221,7 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
     from sweep import parse_config
     from sweep.engine.finite import _BodyInputs, _run_and_place, finite_chunks, finite_layout
     from sweep.engine.impulsive import plan_body
+    from sweep.model.strategies import STRATEGIES
     from tests.test_evaluate_finite import FINITE_CONFIG
 
     config = parse_config(FINITE_CONFIG)
@@ -230,18 +231,15 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
                        np.asarray(plan.geometry.apoapsis_radius), plan.status)
     chunk = finite_chunks(config)[0]
     arguments = (body, config.v_inf[chunk.v_inf_start:chunk.v_inf_stop], config.thrust, 320.0 * 9.80665,
-                 config.arrival_mass, config.steering)
-
-    from sweep.engine.finite import FiniteArrays
+                 config.arrival_mass, config.steering, tuple(STRATEGIES))
 
     def fresh():
-        return FiniteArrays(**{name: np.full(shape, -7.0).astype(dtype)
-                               for name, (shape, dtype) in finite_layout(config).items()})
+        return {name: np.full(shape, -7.0).astype(dtype) for name, (shape, dtype) in finite_layout(config).items()}
 
     gone = subprocess.Popen([sys.executable, "-c", "pass"])
     gone.wait()  # a run that no longer exists
     orphan, child = fresh(), fresh()
     _run_and_place(orphan, chunk, gone.pid, *arguments)
-    assert (orphan.finite_status == -7).all()  # untouched
+    assert (orphan["finite_status"] == -7).all()  # untouched
     _run_and_place(child, chunk, os.getppid(), *arguments)
-    assert (child.finite_status[:, 0, chunk.v_inf_start:chunk.v_inf_stop] != -7).all()
+    assert (child["finite_status"][:, 0, chunk.v_inf_start:chunk.v_inf_stop] != -7).all()

@@ -9,7 +9,9 @@ import numpy as np
 import pytest
 
 from sweep import build_dataset, parse_config, run, run_to_file, write_dataset
-from sweep.engine.impulsive import STREAMED, add_placeholders, estimate_bytes, prepare, sweep_chunks
+from sweep.engine.impulsive import add_placeholders, estimate_bytes, prepare, sweep_chunks
+from sweep.model.strategies import STRATEGIES
+from sweep.model.variables import cube_variables
 from tests.conftest import SMALL_CONFIG, cube_contents
 from tests.test_evaluate_finite import FINITE_CONFIG
 from tests.test_plane_change import PLANE
@@ -41,7 +43,9 @@ def test_compressed_streamed_cube_is_chunked_by_body_and_speed_run(tmp_path):
     streamed = run_to_file(config, tmp_path / "streamed.nc", workers=1, compression=1, points_per_chunk=16)
     # 16 points / (2 targets x 4 periapses) = 2 arrival speeds per chunk
     with netCDF4.Dataset(whole) as a, netCDF4.Dataset(streamed) as b:
-        for name in (*STREAMED, "plane_change_delta_v", "plane_change_best_strategy"):
+        streamed = [v.name for v in cube_variables(STRATEGIES, config=config) if v.streamed]
+        assert {"delta_v", "status", "plane_change_delta_v", "plane_change_best_strategy"} <= set(streamed)
+        for name in streamed:
             variable = b.variables[name]
             sizes = dict(zip(variable.dimensions, variable.chunking(), strict=True))
             assert sizes["body"] == 1 and sizes["v_inf"] == 2, name
@@ -81,8 +85,8 @@ def test_chunks_arrive_in_grid_order_with_one_body_each():
     config = parse_config(SMALL_CONFIG, "small.toml")
     plans, arrays = prepare(config, workers=1)
     add_placeholders(config, arrays)
-    assert arrays.delta_v.strides == (0,) * arrays.delta_v.ndim  # a label, not memory
-    seen = [(chunk.body, chunk.v_inf_start, chunk.v_inf_stop, local.delta_v.shape)
+    assert arrays["delta_v"].strides == (0,) * arrays["delta_v"].ndim  # a label, not memory
+    seen = [(chunk.body, chunk.v_inf_start, chunk.v_inf_stop, local["delta_v"].shape)
             for chunk, local in sweep_chunks(config, plans, workers=2, points_per_chunk=24)]
     # 24 points / (2 targets x 4 periapses) = 3 arrival speeds a chunk; 12 speeds per body
     assert seen == [(b, s, s + 3, (3, 1, 3, 2, 4)) for b in range(3) for s in range(0, 12, 3)]

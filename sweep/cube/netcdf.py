@@ -12,14 +12,10 @@ import numpy as np
 import xarray as xr
 
 from sweep.atomic import replacing
-from sweep.engine.grid import Chunk
-from sweep.engine.impulsive import STREAMED, SweepArrays
+from sweep.model.strategies import STRATEGIES
+from sweep.model.variables import cube_variables
 
 __all__ = ["open_cube", "write_dataset"]
-
-_PLANE_VARIABLES = {"delta_v": "plane_change_delta_v", "two_burn_first_share": "two_burn_first_plane_change",
-                    "best_strategy": "plane_change_best_strategy",
-                    "saving_over_direct": "plane_change_saving_over_direct"}
 
 
 def _encoding(dataset: xr.Dataset, compression: int) -> dict:
@@ -40,14 +36,15 @@ def _encoding(dataset: xr.Dataset, compression: int) -> dict:
 
 
 def write_dataset(dataset: xr.Dataset, path: str | Path, compression: int = 0,
-                  stream: Iterable[tuple[Chunk, SweepArrays]] | None = None, speeds_per_chunk: int = 1) -> Path:
+                  stream: Iterable[tuple] | None = None, speeds_per_chunk: int = 1) -> Path:
     """
     Write ``dataset`` to ``path`` (netCDF4) atomically: a temporary file in the same folder,
     renamed over the target only once complete. A failure leaves any earlier file intact.
     ``compression``: zlib level 1-9, or 0 (the default) for none.
 
     With ``stream`` (the ``(chunk, arrays)`` pairs of :func:`sweep.engine.impulsive.sweep_chunks`) the
-    dataset's per-point variables are placeholders (:func:`sweep.engine.impulsive.add_placeholders`):
+    dataset's streamed variables (as the variable registry marks them) are placeholders
+    (:func:`sweep.engine.impulsive.add_placeholders`):
     the file is made with them empty, and this one writer puts each chunk's values in place as
     it arrives, so memory holds a few chunks, not the cube. Compressed, those variables are
     stored in HDF5 chunks of one strategy, one body and ``speeds_per_chunk`` arrival speeds
@@ -64,7 +61,8 @@ def write_dataset(dataset: xr.Dataset, path: str | Path, compression: int = 0,
                 dataset.to_netcdf(temporary, format="NETCDF4", engine="netcdf4",
                                   encoding=_encoding(dataset, compression))
             else:
-                _write_streamed(dataset, stream, temporary, compression, speeds_per_chunk)
+                names = [v.name for v in cube_variables(STRATEGIES) if v.streamed and v.name in dataset]
+                _write_streamed(dataset, stream, temporary, compression, speeds_per_chunk, names)
         except RuntimeError as err:  # netCDF-C reports a full disk as "NetCDF: HDF error", not as an OSError
             raise _write_error(err, path) from err
     return path
@@ -85,17 +83,14 @@ def _mib(count: int) -> str:
     return f"{count / (1 << 20):.1f} MiB"
 
 
-def _chunk_variables(arrays: SweepArrays) -> dict[str, np.ndarray]:
-    """Cube variable name -> array, for the per-point arrays of one streamed chunk."""
-    variables = {name: getattr(arrays, name) for name in STREAMED}
-    if arrays.plane is not None:
-        variables.update({cube_name: getattr(arrays.plane, field) for field, cube_name in _PLANE_VARIABLES.items()})
-    return variables
+def _chunk_variables(arrays: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Cube variable name -> array, for the streamed arrays of one chunk."""
+    return arrays
 
 
-def _write_streamed(dataset: xr.Dataset, stream, path: Path, compression: int, speeds_per_chunk: int) -> None:
-    """The file without the per-point variables (xarray), then those variables chunk by chunk (netCDF4)."""
-    names = [name for name in (*STREAMED, *_PLANE_VARIABLES.values()) if name in dataset]
+def _write_streamed(dataset: xr.Dataset, stream, path: Path, compression: int, speeds_per_chunk: int,
+                    names: list[str]) -> None:
+    """The file without the streamed variables ``names`` (xarray), then those variables chunk by chunk (netCDF4)."""
     skeleton = dataset.drop_vars(names)
     skeleton.to_netcdf(path, format="NETCDF4", engine="netcdf4", encoding=_encoding(skeleton, compression))
     auxiliary = {name: set(coordinate.dims) for name, coordinate in dataset.coords.items() if name not in dataset.dims}

@@ -24,70 +24,34 @@ from joblib import Parallel, delayed
 
 from sweep.config import SweepConfig
 from sweep.engine.grid import chunks
+from sweep.engine.layout import Arrays, layout
 from sweep.engine.processes import alive
 from sweep.engine.progress import track
 from sweep.errors import SweepError
-from sweep.model.statuses import STATUSES
-from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, max_burns, pick_best
+from sweep.model.statuses import status_code
+from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, pick_best
+from sweep.model.variables import cube_variables, shape_of
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
 
-__all__ = ["FiniteArrays", "evaluate_finite", "finite_chunks", "finite_layout"]
+__all__ = ["FINITE_STAGES", "evaluate_finite", "finite_chunks", "finite_layout"]
 
 logger = logging.getLogger(__name__)
 
 _KM = 1.0e3  # m per km
-_CODE = {status.name: code for code, status in enumerate(STATUSES)}
-_OUTCOME_CODE = np.array([0] + [_CODE[name] for name in OUTCOMES[1:]], dtype=np.int8)
+# The checkpointed (per-chunk) finite variables and their dimensions: the same for every strategy set.
+_FINITE_DIMS = {v.name: v.dims for v in cube_variables(()) if v.checkpointed}
+_OUTCOME_CODE = np.array([0] + [status_code(name) for name in OUTCOMES[1:]], dtype=np.int8)
+FINITE_STAGES = ("finite", "finite_crossover")
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
 _ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
 _BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
 _MIN_CHUNKS = 16  # finite-burn chunks per sweep at least, where the grid has that many arrival speeds
 
 
-@dataclass
-class FiniteArrays:
-    """Finite-burn results in cube order, with the thrust axis last (units in sweep.cube.conventions)."""
-
-    finite_delta_v: np.ndarray
-    finite_burn_delta_v: np.ndarray
-    gravity_loss: np.ndarray
-    burn_duration: np.ndarray
-    burn_propellant_mass: np.ndarray
-    reached_periapsis_altitude: np.ndarray
-    reached_apoapsis_altitude: np.ndarray
-    finite_propellant_mass: np.ndarray
-    finite_time_to_orbit: np.ndarray
-    finite_status: np.ndarray
-    finite_best_strategy: np.ndarray
-    finite_saving_over_direct: np.ndarray
-    finite_crossover_v_inf: np.ndarray
-
-
-def finite_layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], type]]:
+def finite_layout(config: SweepConfig) -> dict[str, tuple[tuple[int, ...], np.dtype]]:
     """Shape and dtype of every finite-burn output array (empty for an impulsive sweep)."""
-    if config.thrust is None:
-        return {}
-    shape = config.finite_shape
-    count = len(STRATEGIES)
-    per_burn = ((count, max_burns(), *shape), np.float64)
-    per_strategy = ((count, *shape), np.float64)
-    nbody, _, ntarget, nperiapsis, nthrust = shape
-    return {
-        "finite_delta_v": per_strategy,
-        "finite_burn_delta_v": per_burn,
-        "gravity_loss": per_burn,
-        "burn_duration": per_burn,
-        "burn_propellant_mass": per_burn,
-        "reached_periapsis_altitude": per_burn,
-        "reached_apoapsis_altitude": per_burn,
-        "finite_propellant_mass": per_strategy,
-        "finite_time_to_orbit": per_strategy,
-        "finite_status": ((count, *shape), np.int8),
-        "finite_best_strategy": (shape, np.int8),
-        "finite_saving_over_direct": (shape, np.float64),
-        "finite_crossover_v_inf": ((len(challengers()), nbody, ntarget, nperiapsis, nthrust), np.float64),
-    }
+    return layout(config, FINITE_STAGES)
 
 
 @dataclass(frozen=True)
@@ -114,18 +78,35 @@ def _fly(strategy, gm, radius, soi, geometry: Geometry, speed, thrust, exhaust_s
     ), maneuver
 
 
-def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steering) -> dict[str, np.ndarray]:
-    """All strategies for one body, a run of arrival speeds, every target, periapsis and thrust."""
+def _chunk_arrays(strategies, speeds: int, targets: int, periapses: int, thrusts: int) -> dict[str, np.ndarray]:
+    """One chunk's finite-stage arrays (a body axis of length 1), NaN or 0 until computed."""
+    sizes = {"strategy": len(strategies), "burn": max(s.burns for s in strategies), "body": 1, "v_inf": speeds,
+             "target_altitude": targets, "periapsis_altitude": periapses, "thrust": thrusts}
+    return {v.name: np.full(shape_of(v, sizes), 0 if v.flags else np.nan, dtype=v.dtype)
+            for v in cube_variables(strategies) if v.checkpointed}
+
+
+def _without_body(arrays: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """Views of one chunk's arrays without their body axis (length 1)."""
+    return {name: values[(slice(None),) * _axis(name, "body") + (0,)] for name, values in arrays.items()}
+
+
+def _axis(name: str, dim: str) -> int:
+    """Position of dimension ``dim`` in finite variable ``name``."""
+    return _FINITE_DIMS[name].index(dim)
+
+
+def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steering, strategies) -> Arrays:
+    """
+    All ``strategies`` (the registry's entries, passed along so that worker processes fly the
+    same ones) for one body, a run of arrival speeds, every target, periapsis and thrust.
+    """
     shape = (speeds_km.size, body.target_radius.shape[0], body.periapsis_radius.shape[1], thrust.size)
-    out = {name: np.full((len(STRATEGIES), max_burns(), *shape), np.nan) for name in (
-        "finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass",
-        "reached_periapsis_altitude", "reached_apoapsis_altitude")}
-    out.update({name: np.full((len(STRATEGIES), *shape), np.nan) for name in (
-        "finite_delta_v", "finite_propellant_mass", "finite_time_to_orbit")})
-    out["finite_status"] = np.zeros((len(STRATEGIES), *shape), dtype=np.int8)
+    arrays = _chunk_arrays(strategies, *shape)
+    out = _without_body(arrays)
     grids = np.meshgrid(speeds_km * _KM, np.arange(shape[1]), np.arange(shape[2]), thrust, indexing="ij")
     speed, target_index, periapsis_index, thrusts = (g.ravel() for g in grids)
-    for s, strategy in enumerate(STRATEGIES):
+    for s, strategy in enumerate(strategies):
         code = body.status[s][target_index, periapsis_index]
         out["finite_status"][s].ravel()[:] = code
         ok = np.flatnonzero(code == 0)
@@ -138,7 +119,7 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
         flown = result.outcome == 0
         out["finite_status"][s].ravel()[ok] = _OUTCOME_CODE[result.outcome]
         remaining = np.full(ok.size, float(mass))
-        for k in range(max_burns()):
+        for k in range(out["finite_burn_delta_v"].shape[1]):
             values = dict.fromkeys(("finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass"),
                                    np.zeros(ok.size))
             if k < strategy.burns:
@@ -160,11 +141,11 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
         out["finite_propellant_mass"][s].ravel()[ok] = mass * -np.expm1(-total / exhaust_speed)
         out["finite_time_to_orbit"][s].ravel()[ok] = np.where(flown, result.time, np.nan)
     best, saving, _ = pick_best(out["finite_delta_v"], out["finite_propellant_mass"])
-    out["finite_best_strategy"], out["finite_saving_over_direct"] = best, saving
-    return out
+    out["finite_best_strategy"][...], out["finite_saving_over_direct"][...] = best, saving
+    return arrays
 
 
-def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteArrays, runner) -> None:
+def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: Arrays, runner) -> None:
     """
     Equal-cost arrival speeds per (body, target, periapsis, thrust), in place, km/s.
 
@@ -173,9 +154,11 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteAr
     """
     exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
     v_grid = config.v_inf * _KM
-    arrays.finite_crossover_v_inf[...] = np.nan
-    for slot, (challenger, _) in enumerate(challengers()):
-        gap = arrays.finite_delta_v[challenger] - arrays.finite_delta_v[DIRECT]  # (B, V, T, P, F)
+    reference = STRATEGIES[DIRECT]
+    for challenger, strategy in challengers():
+        crossover = arrays[strategy.finite_crossover_variable]
+        crossover[...] = np.nan
+        gap = arrays["finite_delta_v"][challenger] - arrays["finite_delta_v"][DIRECT]  # (B, V, T, P, F)
         flips = (np.sign(gap[:, :-1]) * np.sign(gap[:, 1:]) < 0)
         first = np.argmax(flips, axis=1)  # (B, T, P, F)
         b, t, p, f = np.nonzero(flips.any(axis=1))
@@ -194,14 +177,14 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: FiniteAr
             "thrust": config.thrust[f],
         }
         groups = [slice(start, start + _BRACKETS_PER_TASK) for start in range(0, b.size, _BRACKETS_PER_TASK)]
-        tasks = (delayed(_solve_brackets)({k: v[g] for k, v in brackets.items()}, challenger, exhaust_speed,
-                                          config.arrival_mass, config.steering) for g in groups)
+        tasks = (delayed(_solve_brackets)({k: v[g] for k, v in brackets.items()}, (strategy, reference),
+                                          exhaust_speed, config.arrival_mass, config.steering) for g in groups)
         root = np.concatenate(list(runner(tasks)))
-        arrays.finite_crossover_v_inf[slot, b, t, p, f] = root / _KM
+        crossover[b, t, p, f] = root / _KM
 
 
-def _solve_brackets(brackets, challenger, exhaust_speed, mass, steering) -> np.ndarray:
-    """Illinois iterations for one group of brackets (run in a worker)."""
+def _solve_brackets(brackets, pair, exhaust_speed, mass, steering) -> np.ndarray:
+    """Illinois iterations for one group of brackets (run in a worker); ``pair``: (challenger, reference)."""
     # A circular target is passed as an ellipse with equal apsides here: the same orbit.
     geometry = Geometry(brackets["gm"], brackets["periapsis"], brackets["target"], brackets["apoapsis"],
                         brackets["target_apoapsis"])
@@ -209,8 +192,8 @@ def _solve_brackets(brackets, challenger, exhaust_speed, mass, steering) -> np.n
     def gap(speed, index):
         sub = Geometry(*(value[index] for value in geometry))
         totals = []
-        for strategy in (challenger, DIRECT):
-            result, _ = _fly(STRATEGIES[strategy], brackets["gm"][index], brackets["radius"][index],
+        for strategy in pair:
+            result, _ = _fly(strategy, brackets["gm"][index], brackets["radius"][index],
                              brackets["soi"][index], sub, speed, brackets["thrust"][index], exhaust_speed, mass,
                              steering)
             totals.append(np.where(result.outcome == 0, result.delta_v.sum(axis=0), np.nan))
@@ -250,20 +233,21 @@ def _illinois(function, low, high, f_low, f_high):
     return root
 
 
-def _place(out: FiniteArrays, chunk, result: dict[str, np.ndarray]) -> None:
+def _where(name: str, chunk) -> tuple:
+    """Index of one chunk's block in the full array of finite variable ``name``."""
+    where = [slice(None)] * len(_FINITE_DIMS[name])
+    where[_axis(name, "body")] = slice(chunk.body, chunk.body + 1)
+    where[_axis(name, "v_inf")] = slice(chunk.v_inf_start, chunk.v_inf_stop)
+    return tuple(where)
+
+
+def _place(out: Arrays, chunk, result: dict[str, np.ndarray]) -> None:
     """Write one chunk's arrays into the full output (in memory or a shared memory map)."""
-    speeds = slice(chunk.v_inf_start, chunk.v_inf_stop)
     for name, values in result.items():
-        target = getattr(out, name)
-        if name in ("finite_best_strategy", "finite_saving_over_direct"):
-            target[chunk.body, speeds] = values
-        elif values.ndim == 6:
-            target[:, :, chunk.body, speeds] = values
-        else:
-            target[:, chunk.body, speeds] = values
+        out[name][_where(name, chunk)] = values
 
 
-def _run_and_place(out: FiniteArrays, chunk, parent: int, *args) -> None:
+def _run_and_place(out: Arrays, chunk, parent: int, *args) -> None:
     """
     A task of run ``parent`` (its pid), in that process or a worker of it; skipped once the run
     is gone (killed: its orphaned workers drain the queue without computing).
@@ -272,24 +256,9 @@ def _run_and_place(out: FiniteArrays, chunk, parent: int, *args) -> None:
         _place(out, chunk, _run_chunk(*args))
 
 
-_CHUNK_NAMES = ("finite_delta_v", "finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass",
-                "reached_periapsis_altitude", "reached_apoapsis_altitude", "finite_propellant_mass",
-                "finite_time_to_orbit", "finite_status", "finite_best_strategy", "finite_saving_over_direct")
-
-
-def _take(out: FiniteArrays, chunk) -> dict[str, np.ndarray]:
-    """One chunk's arrays, read back from the full output (the inverse of :func:`_place`)."""
-    speeds = slice(chunk.v_inf_start, chunk.v_inf_stop)
-    result = {}
-    for name in _CHUNK_NAMES:
-        values = getattr(out, name)
-        if name in ("finite_best_strategy", "finite_saving_over_direct"):
-            result[name] = np.array(values[chunk.body, speeds])
-        elif values.ndim == 7:
-            result[name] = np.array(values[:, :, chunk.body, speeds])
-        else:
-            result[name] = np.array(values[:, chunk.body, speeds])
-    return result
+def _take(out: Arrays, chunk) -> dict[str, np.ndarray]:
+    """One chunk's checkpointed arrays, read back from the full output (the inverse of :func:`_place`)."""
+    return {name: np.array(out[name][_where(name, chunk)]) for name in _FINITE_DIMS}
 
 
 def _checkpoint_file(folder: Path, index: int) -> Path:
@@ -354,7 +323,7 @@ def _remove_stale_shared(parent: str | None) -> None:
 
 def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
                     points_per_chunk: int = 1 << 14, scheduler: str | None = None,
-                    checkpoint: Path | None = None) -> FiniteArrays:
+                    checkpoint: Path | None = None) -> Arrays:
     """
     Run every strategy with the finite-burn model; ``plans`` are the impulsive per-body plans.
 
@@ -368,7 +337,8 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     chunks already saved there (by a run that was killed) are loaded instead of recomputed: the
     result is the same array for array. The folder is the caller's to remove once the cube lands.
     """
-    layout = finite_layout(config)
+    shapes = finite_layout(config)
+    strategies = tuple(STRATEGIES)
     bodies = [
         _BodyInputs(body.gm, body.radius, body.sphere_of_influence, plan.geometry.periapsis_radius,
                     plan.geometry.target_radius, np.asarray(plan.geometry.apoapsis_radius), plan.status,
@@ -381,10 +351,10 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
 
     def arguments(c):
         return (bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop], config.thrust, exhaust_speed,
-                config.arrival_mass, config.steering)
+                config.arrival_mass, config.steering, strategies)
 
     if scheduler is not None:
-        return _evaluate_on_cluster(config, bodies, layout, work, arguments, scheduler, progress)
+        return _evaluate_on_cluster(config, bodies, shapes, work, arguments, scheduler, progress)
     done = set()
     if checkpoint is not None:
         checkpoint.mkdir(parents=True, exist_ok=True)
@@ -403,10 +373,9 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     try:
         # With several processes the workers write into memory maps; once they are done the files
         # are removed and the maps, still open here, are the result: nothing is pickled back.
-        out = FiniteArrays(**{
-            name: np.empty(shape, dtype) if folder is None else np.lib.format.open_memmap(
-                os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
-            for name, (shape, dtype) in layout.items()})
+        out = {name: np.empty(shape, dtype) if folder is None else np.lib.format.open_memmap(
+            os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
+            for name, (shape, dtype) in shapes.items()}
 
         def load_done() -> None:
             for i in sorted(done):
@@ -435,7 +404,7 @@ def _reachable(address: str) -> None:
         socket.create_connection((host.strip("[]"), int(port)), timeout=5).close()
 
 
-def _evaluate_on_cluster(config, bodies, layout, work, arguments, scheduler: str, progress: bool) -> FiniteArrays:
+def _evaluate_on_cluster(config, bodies, shapes, work, arguments, scheduler: str, progress: bool) -> Arrays:
     """The finite sweep on a Dask distributed cluster: chunks return their arrays to this process."""
     try:
         from distributed import Client
@@ -447,7 +416,7 @@ def _evaluate_on_cluster(config, bodies, layout, work, arguments, scheduler: str
         client = Client(scheduler, timeout=30)
     except (OSError, TimeoutError, ValueError) as err:
         raise SweepError(f"--scheduler {scheduler!r}: cannot reach the Dask scheduler ({err})") from err
-    out = FiniteArrays(**{name: np.empty(shape, dtype) for name, (shape, dtype) in layout.items()})
+    out = {name: np.empty(shape, dtype) for name, (shape, dtype) in shapes.items()}
     logger.info("finite burns: %d points in %d chunks on the Dask cluster at %s",
                 int(np.prod(config.finite_shape)), len(work), scheduler)
     try:

@@ -4,10 +4,7 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-__all__ = ["DIMENSIONS", "Chunk", "chunks", "speeds_per_chunk"]
-
-# Dimension order of every per-point array (the strategy axis is prepended where present).
-DIMENSIONS = ("body", "v_inf", "target_altitude", "periapsis_altitude")
+__all__ = ["Chunk", "chunks", "speeds_per_chunk"]
 
 
 class Chunk(NamedTuple):

@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import NamedTuple
 
 import numpy as np
 
+from sweep.model.variables import DIMENSIONS, Variable
 from sweep.physics.capture import (
     Maneuver,
     best_plane_change_split,
@@ -38,6 +39,7 @@ __all__ = [
 ]
 
 NO_STRATEGY = -1  # best strategy where no strategy is feasible
+_KM = 1.0e3  # m per km
 
 
 class Geometry(NamedTuple):
@@ -96,6 +98,11 @@ class Strategy:
     # None: "<name>_crossover_v_inf" and "finite_<name>_crossover_v_inf".
     crossover_name: str | None = None
     finite_crossover_name: str | None = None
+    # Outputs of its own (registry entries, with their stage), beyond those every strategy has:
+    # ``outputs(geometry, body_radius)`` gives the per-point ones of the "impulsive" stage in
+    # cube units, shaped (target, periapsis); ``turn`` gives those of the "plane" stage.
+    variables: tuple[Variable, ...] = ()
+    outputs: Callable[[Geometry, float], dict[str, np.ndarray]] = field(default=lambda g, radius: {}, compare=False)
 
     @property
     def crossover_variable(self) -> str:
@@ -142,6 +149,9 @@ STRATEGIES: list[Strategy] = [
         orbits=lambda g: [(g.periapsis_radius, g.target_far), (g.target_radius, g.target_far)],
         turn=_two_burn_turn,
         turn_how="split between its burns as cheapest (scan and golden section)",
+        variables=(Variable("two_burn_first_plane_change", (*DIMENSIONS, "plane_change"), "degree",
+                            "part of the plane change two_burn makes with its first burn (the rest with the second)",
+                            "plane", when="plane_change"),),
         colour=OKABE_ITO["orange"],
         line_style=("--", "o"),
         crossover_name="crossover_v_inf",
@@ -163,6 +173,10 @@ STRATEGIES: list[Strategy] = [
         turn=lambda v, g, angle: Turn(three_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius,
                                                          g.apoapsis_radius, angle, g.target_apoapsis), {}),
         turn_how="with the apoapsis burn",
+        variables=(Variable("intermediate_apoapsis_altitude", DIMENSIONS, "km", "three_burn intermediate apoapsis "
+                            "altitude minimising total delta-v within the bound", "impulsive",
+                            attrs=lambda config: {"comment": "NaN where three_burn is infeasible"}),),
+        outputs=lambda g, radius: {"intermediate_apoapsis_altitude": (g.apoapsis_radius - radius) / _KM},
         colour=OKABE_ITO["bluish_green"],
         line_style=(":", "s"),
     ),

@@ -8,9 +8,10 @@ from dataclasses import dataclass, field
 import numpy as np
 import xarray as xr
 
-__all__ = ["Drift", "compare_cubes", "render_drift"]
+from sweep.model.strategies import STRATEGIES
+from sweep.model.variables import winner_variables
 
-_WINNERS = ("best_strategy", "finite_best_strategy", "plane_change_best_strategy")
+__all__ = ["Drift", "compare_cubes", "render_drift"]
 
 
 @dataclass
@@ -38,6 +39,7 @@ def compare_cubes(old: xr.Dataset, new: xr.Dataset) -> Drift:
     names_new = set(new.variables)
     drift.added = sorted(names_new - names_old)
     drift.removed = sorted(names_old - names_new)
+    winners = set(winner_variables(STRATEGIES))  # categorical: a changed index is a changed winner, not a number
     for name in sorted(names_old & names_new):
         a, b = old[name], new[name]
         if a.dims != b.dims or a.shape != b.shape:
@@ -51,7 +53,7 @@ def compare_cubes(old: xr.Dataset, new: xr.Dataset) -> Drift:
         one_nan = np.isnan(x) != np.isnan(y)
         drift.nan_changes[name] = int(one_nan.sum())
         both = ~np.isnan(x) & ~np.isnan(y)
-        if name in _WINNERS:
+        if name in winners:
             drift.winner_changes[name] = int((x != y)[both].sum())
             continue
         if both.any():
