@@ -23,6 +23,7 @@ import numpy as np
 from joblib import Parallel, delayed
 
 from sweep.config import SweepConfig
+from sweep.engine.checkpoint import chunk_file, load_chunk, save_chunk
 from sweep.engine.grid import chunks
 from sweep.engine.layout import Arrays, layout
 from sweep.engine.processes import alive
@@ -261,21 +262,6 @@ def _take(out: Arrays, chunk) -> dict[str, np.ndarray]:
     return {name: np.array(out[name][_where(name, chunk)]) for name in _FINITE_DIMS}
 
 
-def _checkpoint_file(folder: Path, index: int) -> Path:
-    return folder / f"chunk-{index:06d}.npz"
-
-
-def _save_checkpoint(folder: Path, index: int, result: dict[str, np.ndarray]) -> None:
-    """Write one finished chunk atomically (temporary name, fsync, rename)."""
-    final = _checkpoint_file(folder, index)
-    temporary = final.with_suffix(".part")
-    with open(temporary, "wb") as stream:
-        np.savez(stream, **result)
-        stream.flush()
-        os.fsync(stream.fileno())
-    os.replace(temporary, final)
-
-
 def finite_chunks(config: SweepConfig, points_per_chunk: int = 1 << 14) -> list:
     """
     The finite-burn chunks: about ``points_per_chunk`` finite-burn points each (every thrust
@@ -358,7 +344,7 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     done = set()
     if checkpoint is not None:
         checkpoint.mkdir(parents=True, exist_ok=True)
-        done = {i for i in range(len(work)) if _checkpoint_file(checkpoint, i).is_file()}
+        done = {i for i in range(len(work)) if chunk_file(checkpoint, i).is_file()}
         if done:
             logger.info("resuming: %d of %d finite-burn chunks already done in %s", len(done), len(work), checkpoint)
     todo = [i for i in range(len(work)) if i not in done]
@@ -379,15 +365,14 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
 
         def load_done() -> None:
             for i in sorted(done):
-                with np.load(_checkpoint_file(checkpoint, i)) as saved:
-                    _place(out, work[i], {name: saved[name] for name in saved.files})
+                _place(out, work[i], load_chunk(checkpoint, i))
 
         loading = loader.submit(load_done)
         tasks = (delayed(_run_and_place)(out, work[i], os.getpid(), *arguments(work[i])) for i in todo)
         for i, _ in zip(todo, track(runner(tasks), len(todo), points * len(todo) // max(len(work), 1),
                                     "finite burns", progress), strict=True):
             if checkpoint is not None:
-                _save_checkpoint(checkpoint, i, _take(out, work[i]))
+                save_chunk(checkpoint, i, _take(out, work[i]))
         loading.result()  # raises what the loader met, e.g. an unreadable checkpoint
     finally:
         loader.shutdown(wait=True, cancel_futures=True)  # never remove the maps under a running loader
