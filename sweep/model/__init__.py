@@ -1,0 +1,1 @@
+"""The registries: strategies, output variables and feasibility codes; what the cube's labels mean."""
