@@ -12,7 +12,7 @@ import pytest
 from sweep import parse_config, run
 from sweep.engine.impulsive import evaluate
 from sweep.model.strategies import OKABE_ITO, STRATEGIES, Geometry, Strategy, Turn, register, unregister
-from sweep.model.variables import cube_variables
+from sweep.model.variables import DIMENSIONS, Variable, cube_variables
 from sweep.physics.capture import Maneuver, two_burn_capture
 from sweep.report.compare import compare_cubes
 
@@ -37,6 +37,10 @@ TOY = Strategy(
                                                    g.target_apoapsis), {}),
     turn_how="all with its first burn",
     colour=OKABE_ITO["vermillion"],
+    # an output of its own: one registry entry plus its computation
+    variables=(Variable("toy_dive_depth", DIMENSIONS, "km", "how far the toy's periapsis lies below the target",
+                        "impulsive"),),
+    outputs=lambda g, radius: {"toy_dive_depth": (g.target_radius - g.periapsis_radius) / 1e3},
 )
 
 # Test input of our own: one body, a coarse grid, a plane-change axis.
@@ -47,7 +51,7 @@ IMPULSIVE = textwrap.dedent(
     bodies = ["mars"]
     v_inf = { start = 0.5, stop = 6.0, num = 12 }
     target_altitude = [300.0, 5000.0]
-    periapsis_altitude = [150.0, 1000.0]
+    periapsis_altitude = [250.0, 1000.0]
     plane_change = [0.0, 20.0]
     [spacecraft]
     specific_impulse = 320.0
@@ -77,6 +81,11 @@ def test_a_registered_strategy_is_evaluated_and_labelled(toy):
     np.testing.assert_array_equal(two.values, mine.values)
     assert np.isfinite(mine.values).any()
     np.testing.assert_array_equal(dataset["toy_crossover_v_inf"].values, dataset["crossover_v_inf"].values)
+    depth = dataset["toy_dive_depth"]
+    assert depth.dims == ("body", "v_inf", "target_altitude", "periapsis_altitude") and depth.attrs["units"] == "km"
+    # target 5000 km, periapsis 250 km: 4750 km deep at every arrival speed (where toy is feasible)
+    np.testing.assert_allclose(depth.values[0, :, 1, 0], 4750.0, rtol=1e-12)  # subtraction of exact km values
+    np.testing.assert_allclose(depth.values[0, :, 0, 1], -700.0, rtol=1e-12)  # periapsis above a 300 km target
     assert "toy: all with its first burn" in dataset["plane_change_delta_v"].attrs["comment"]
     assert dataset["best_strategy"].attrs["flag_meanings"].endswith("three_burn toy")
     assert "two_burn, three_burn and toy" in dataset["periapsis_altitude"].attrs["long_name"]
