@@ -153,9 +153,9 @@ def check_loop(results, arrays, config, sample):
     best = np.array([r[3] for r in results])
     saving = np.array([r[4] for r in results])
     reference = {
-        "delta_v": (totals, arrays.delta_v[(slice(None), *index)]),
-        "propellant_mass": (propellant, arrays.propellant_mass[(slice(None), *index)]),
-        "saving_over_direct": (saving, arrays.saving_over_direct[index]),
+        "delta_v": (totals, arrays["delta_v"][(slice(None), *index)]),
+        "propellant_mass": (propellant, arrays["propellant_mass"][(slice(None), *index)]),
+        "saving_over_direct": (saving, arrays["saving_over_direct"][index]),
     }
     report = {}
     for name, (loop, vector) in reference.items():
@@ -163,16 +163,16 @@ def check_loop(results, arrays, config, sample):
         both = ~np.isnan(loop) & ~np.isnan(vector)
         diff = float(np.max(np.abs(loop[both] - vector[both]), initial=0.0))
         report[name] = (same_nan, diff, int(both.sum()))
-    burn_vector = arrays.burn_delta_v[(slice(None), slice(None), *index)]
+    burn_vector = arrays["burn_delta_v"][(slice(None), slice(None), *index)]
     burn_diff = 0.0
     for s in range(3):
         for k in range(s + 1):
             loop = np.array([r[0][s][k] for r in results])
             vector = burn_vector[s, k]
-            ok = arrays.status[(s, *index)] == 0
+            ok = arrays["status"][(s, *index)] == 0
             burn_diff = max(burn_diff, float(np.max(np.abs(loop[ok] - vector[ok]), initial=0.0)))
     report["burn_delta_v"] = (True, burn_diff, None)
-    best_match = int((best == arrays.best_strategy[index]).sum())
+    best_match = int((best == arrays["best_strategy"][index]).sum())
     return report, best_match
 
 

@@ -52,11 +52,14 @@ BARE = """
 import json, resource, sys, time
 import netCDF4, numpy as np
 from sweep import build_dataset, parse_config
-from sweep.engine.impulsive import STREAMED, STREAM_CHUNK_POINTS, add_placeholders, prepare
+from sweep.engine.impulsive import STREAM_CHUNK_POINTS, add_placeholders, prepare
+from sweep.model.strategies import STRATEGIES
+from sweep.model.variables import cube_variables
 from sweep.engine.grid import chunks
 config = parse_config(sys.stdin.read(), "<bench>")
 dataset = build_dataset(config, add_placeholders(config, prepare(config, workers=2)[1]))
 work = chunks(config.shape, STREAM_CHUNK_POINTS)
+STREAMED = [v.name for v in cube_variables(STRATEGIES, config=config) if v.streamed]
 streamed = set(STREAMED)
 # one buffer per variable, the size of the largest chunk (body axis dropped)
 step = work[0].v_inf_stop - work[0].v_inf_start
