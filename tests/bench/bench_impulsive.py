@@ -255,7 +255,7 @@ def main(argv=None):
     # the serial per-body part of evaluate (geometry, chosen apoapsis, status), for context
     plan_time, _, _ = best_of(options.repeat, lambda: [plan_body(body, config) for body in config.bodies])
     rate = {w: points / t for w, t in eval_best.items()}
-    array_bytes = sum(v.nbytes for v in vars(arrays).values() if v is not None)
+    array_bytes = sum(v.nbytes for v in arrays.values())
 
     # ---- the per-point loop on a seeded random sample ----------------------------------
     rng = np.random.default_rng(options.seed)
