@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from sweep.cli import main
 from sweep import __version__, open_cube, parse_config, run
+from sweep.cli import main
 
 
 def test_run_writes_cube_and_summary_that_round_trip(config_file, tmp_path, capsys):
