@@ -7,34 +7,14 @@ No science and no validation live here. Exit 0 on success, 2 on bad input or a f
 from __future__ import annotations
 
 import argparse
-import hashlib
 import logging
-import os
-import shutil
 import sys
-import time
 from collections.abc import Sequence
-from contextlib import contextmanager
 from pathlib import Path
 
-import xarray as xr
-
-from sweep.atomic import replacing
-from sweep.catalog import catalog
-from sweep.config import load_config
-from sweep.cube.conventions import fingerprint
-from sweep.cube.netcdf import write_dataset
-from sweep.engine.impulsive import estimate_bytes, estimate_memory
-from sweep.errors import SweepError
-from sweep.lock import output_lock
-from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.pipeline import run_to_file
-from sweep.report.summary import answers, summary_tables, write_summary
 from sweep.version import __version__
 
 __all__ = ["main"]
-
-_DEFAULT_OUT = Path("outputs")
 
 
 def _build_parser() -> argparse.ArgumentParser:
@@ -82,7 +62,7 @@ def _build_parser() -> argparse.ArgumentParser:
 
     universal_parser = commands.add_parser(
         "universal", help="the dimensionless regime map for every body: cube and figure")
-    universal_parser.add_argument("--out", type=Path, default=_DEFAULT_OUT / "universal",
+    universal_parser.add_argument("--out", type=Path,
                                   help="output folder (default: outputs/universal/)")
     universal_parser.add_argument("--speed-ratio-max", type=float, default=3.0,
                                   help="largest v_inf / v_circular(target) swept, from 0 (default 3)")
@@ -91,255 +71,86 @@ def _build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _size(count: float) -> str:
-    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
-        if count < 1024 or unit == "TiB":
-            return f"{count:.1f} {unit}" if unit != "B" else f"{int(count)} B"
-        count /= 1024
-    return ""
-
-
 def _run(args: argparse.Namespace) -> int:
+    from sweep.config import load_config
+    from sweep.errors import SweepError
+    from sweep.pipeline import run_sweep
+
     config = load_config(args.config)
-    folder = args.out or _DEFAULT_OUT / config.name
     if args.workers < 0:
         raise SweepError(f"--workers must be 0 (all cores) or a positive count, got {args.workers}")
-    cube_path = folder / f"{config.name}.nc"
-    key = hashlib.sha256("".join(fingerprint(config).values()).encode()).hexdigest()[:16]
-    checkpoint = folder / f".{config.name}.{key}.chunks"  # same inputs and version: same chunks
-    if not args.force and _up_to_date(cube_path, config):
-        shutil.rmtree(checkpoint, ignore_errors=True)  # left by a run killed after its cube landed
-        print(f"up to date: {cube_path} (config, body catalog and capsweep version unchanged; --force recomputes)")
+    result = run_sweep(config, args.out, workers=args.workers or None, force=args.force, compression=args.compression,
+                       scheduler=args.scheduler, progress=sys.stderr.isatty() and not args.quiet)
+    if result.skipped:
+        print(f"up to date: {result.cube} (config, body catalog and capsweep version unchanged; --force recomputes)")
         return 0
-    if not args.force:
-        _check_room(config, folder, args.workers or None)
-    _check_writable(folder)
-    # Checkpoints are kept even with --force: they are keyed by the same config, catalog and
-    # version, so loading them gives the same cube, and a forced run that is killed resumes.
-    with output_lock(folder), _log_file(folder / "capsweep.log"):
-        logging.getLogger("sweep").info("run of %s into %s", config.path, folder)
-        started = time.perf_counter()
-        # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
-        cube = _write(lambda: run_to_file(
-            config, cube_path, workers=args.workers or None, progress=sys.stderr.isatty() and not args.quiet,
-            scheduler=args.scheduler, checkpoint=None if args.scheduler else checkpoint,
-            compression=args.compression), folder)
-        elapsed = time.perf_counter() - started
-        shutil.rmtree(checkpoint, ignore_errors=True)  # the cube has landed
-        with _open_cube(cube) as dataset:
-            figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
-            files = _write(lambda: write_summary(dataset, folder), folder)
-            print(f"cube: {cube}")
-            print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
-            print(_figures_line(figures, folder))
-            if not args.quiet:
-                points = int(dataset["best_strategy"].size)
-                print(f"{points:,} grid points x {dataset.sizes['strategy']} strategies evaluated and written in "
-                      f"{elapsed:.2f} s")
-                print(_short_answer(dataset))
+    print(f"cube: {result.cube}")
+    _print_report(result.summary, result.figures, result.folder)
+    if not args.quiet:
+        print(f"{result.points:,} grid points x {result.strategies} strategies evaluated and written in "
+              f"{result.elapsed:.2f} s")
+        print(result.answer)
     return 0
 
 
-def _check_room(config, folder: Path, workers: int | None) -> None:
-    """Refuse a grid whose cube would not fit on the disk, or whose results would not fit in memory."""
-    cube, memory = estimate_bytes(config), estimate_memory(config, workers)
-    existing = next(p for p in (folder, *folder.absolute().parents) if p.exists())
-    free_disk, free_memory = shutil.disk_usage(existing).free, _available_memory()
-    hint = "shrink the grid, or pass --force to run anyway"
-    if cube > free_disk:
-        raise SweepError(f"{config.path}: grid: the cube would take about {_size(cube)} uncompressed, but {existing} "
-                         f"has {_size(free_disk)} free; {hint}")
-    if free_memory is not None and memory > free_memory:
-        raise SweepError(f"{config.path}: grid: the run would hold about {_size(memory)} of results in memory, but "
-                         f"{_size(free_memory)} is available; {hint}")
-
-
-def _available_memory() -> int | None:
-    """Memory available to a new process, bytes (Linux MemAvailable); None where unknown."""
-    try:
-        with open("/proc/meminfo", encoding="ascii") as info:
-            for line in info:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) * 1024
-    except (OSError, ValueError, IndexError):
-        pass
-    return None
-
-
-def _check_writable(folder: Path) -> None:
-    """Fail before any work if the output folder cannot be made or written to."""
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        probe = folder / f".capsweep-write-test-{os.getpid()}"
-        probe.write_bytes(b"")
-        probe.unlink()
-    except OSError as err:
-        raise SweepError(f"{err.filename or folder}: output folder cannot be written: "
-                         f"{err.strerror or err} (choose another with --out)") from err
-
-
-@contextmanager
-def _log_file(path: Path):
-    """Copy the run's log lines (INFO and up) to a file beside the outputs."""
-    handler = logging.FileHandler(path, encoding="utf-8")
-    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
-    handler.setLevel(logging.INFO)
-    library = logging.getLogger("sweep")
-    previous = library.level
-    library.addHandler(handler)
-    library.setLevel(min(previous or logging.WARNING, logging.INFO))
-    try:
-        yield
-    finally:
-        library.removeHandler(handler)
-        library.setLevel(previous)
-        handler.close()
-
-
-def _up_to_date(cube: Path, config) -> bool:
-    """The cube exists (writes are atomic, so it is complete) and records the same inputs and version."""
-    if not cube.is_file():
-        return False
-    expected = fingerprint(config)
-    try:
-        with xr.open_dataset(cube, engine="netcdf4") as existing:
-            return all(existing.attrs.get(key) == value for key, value in expected.items())
-    except (OSError, ValueError):
-        return False
-
-
-def _write_figures(dataset: xr.Dataset, folder: Path) -> list[Path]:
-    from sweep.report.figures import write_figures  # here, not above: matplotlib loads only for commands that draw
-
-    return write_figures(dataset, folder)
-
-
-def _figures_line(figures: list[Path], folder: Path) -> str:
-    return f"figures: {len(figures)} PNG files in {folder}"
-
-
-def _write(action, folder: Path):
-    try:
-        return action()
-    except OSError as err:
-        raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
-
-
-def _short_answer(dataset: xr.Dataset) -> str:
-    """The summary's plain-language answers, one block per body."""
-    out = []
-    for body, sentences in answers(dataset).items():
-        out.append(f"{body}:")
-        out += [f"  {sentence}" for sentence in sentences]
-    out.append("Preliminary patched-conic estimates (impulsive burns; simple finite burns where a thrust axis is "
-               "given): verify with higher-fidelity propagation.")
-    return "\n".join(out)
+def _print_report(summary: list[Path], figures: list[Path], folder: Path) -> None:
+    if summary:
+        print(f"summary: {summary[0]} (tables: {', '.join(p.name for p in summary[1:])})")
+    print(f"figures: {len(figures)} PNG files in {folder}")
 
 
 def _check(args: argparse.Namespace) -> int:
-    config = load_config(args.config)
-    shape = config.shape
-    points = shape[0] * shape[1] * shape[2] * shape[3]
-    print(f"{config.path}: valid")
-    print(f"  name: {config.name}")
-    print(f"  bodies: {', '.join(b.name for b in config.bodies)}")
-    for label, values, unit in (("v_inf", config.v_inf, "km/s"), ("target_altitude", config.target_altitude, "km"),
-                                ("periapsis_altitude", config.periapsis_altitude, "km")):
-        print(f"  {label}: {values.size} values, {values[0]:g} to {values[-1]:g} {unit}")
-    print(f"  grid shape (body, v_inf, target_altitude, periapsis_altitude): {shape}")
-    print(f"  points: {points:,} (x 3 strategies)")
-    if config.thrust is not None:
-        ratio = config.thrust / (config.arrival_mass * STANDARD_GRAVITY)
-        print(f"  thrust: {config.thrust.size} values, {config.thrust[0]:,.6g} to {config.thrust[-1]:,.6g} N "
-              f"(thrust-to-weight {ratio[0]:.3g} to {ratio[-1]:.3g}), {config.steering} steering")
-        print(f"  finite-burn points: {points * config.thrust.size:,} (x 3 strategies, each burn integrated)")
-    print(f"  cube size, uncompressed: about {_size(estimate_bytes(config))}")
-    print(f"  memory for the run's results (streamed to the cube chunk by chunk), on all cores: about "
-          f"{_size(estimate_memory(config))}")
+    from sweep.config import load_config
+    from sweep.pipeline import check_text
+
+    print(check_text(load_config(args.config)))
     return 0
 
 
 def _bodies(_: argparse.Namespace) -> int:
-    for name, body in catalog().items():
-        print(f"{name}")
-        print(f"  gm {body.gm / 1e9:.10g} km3 s-2  [{body.sources.get('gm', '')}]")
-        print(f"  mean radius {body.radius / 1e3:g} km  [{body.sources.get('radius', '')}]")
-        print(f"  lowest safe periapsis altitude {body.safe_periapsis_altitude / 1e3:g} km  "
-              f"[{body.sources.get('safe_periapsis_altitude', '')}]")
-        if body.parent:
-            print(f"  parent {body.parent}, semi-major axis {body.semi_major_axis / 1e3:.10g} km  "
-                  f"[{body.sources.get('semi_major_axis', '')}]")
-            print(f"  sphere of influence {body.sphere_of_influence / 1e3:,.0f} km, Hill radius "
-                  f"{body.hill_radius / 1e3:,.0f} km  [computed: a (m/M)^(2/5), a (m/3M)^(1/3)]")
+    from sweep.pipeline import bodies_text
+
+    print(bodies_text())
     return 0
 
 
-def _open_cube(path: Path) -> xr.Dataset:
-    """Open a cube written by ``capsweep run``, or raise SweepError naming the file and what is wrong."""
-    try:
-        dataset = xr.open_dataset(path, engine="netcdf4")
-    except FileNotFoundError as err:
-        raise SweepError(f"{path}: cube not found") from err
-    except (OSError, ValueError) as err:
-        reason = str(err).splitlines()[0] if str(err) else type(err).__name__
-        raise SweepError(f"{path}: not a readable netCDF cube ({reason})") from err
-    missing = [v for v in ("best_strategy", "saving_over_direct", "status", "crossover_v_inf") if v not in dataset]
-    if missing:
-        dataset.close()
-        raise SweepError(f"{path}: not a capsweep cube (lacks {', '.join(missing)})")
-    return dataset
-
-
 def _summarize(args: argparse.Namespace) -> int:
+    from sweep.pipeline import summarize_cube
+
     folder = args.out or args.cube.parent
-    with _open_cube(args.cube) as dataset:
-        summary_tables(dataset)  # fail before writing anything if the cube is inconsistent
-        figures = _write(lambda: _write_figures(dataset, folder), folder)  # first: the summary links them
-        files = _write(lambda: write_summary(dataset, folder), folder)
-    print(f"summary: {files[0]} (tables: {', '.join(p.name for p in files[1:])})")
-    print(_figures_line(figures, folder))
+    report = summarize_cube(args.cube, folder)
+    _print_report(report.summary, report.figures, folder)
     return 0
 
 
 def _plot(args: argparse.Namespace) -> int:
+    from sweep.pipeline import plot_cube
+
     folder = args.out or args.cube.parent
-    with _open_cube(args.cube) as dataset:
-        figures = _write(lambda: _write_figures(dataset, folder), folder)
-    print(_figures_line(figures, folder))
+    _print_report([], plot_cube(args.cube, folder), folder)
     return 0
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from sweep.report.compare import compare_cubes, render_drift
+    from sweep.errors import SweepError
+    from sweep.pipeline import compare_files
 
     if not args.tolerance >= 0:
         raise SweepError(f"--tolerance must be >= 0, got {args.tolerance!r}")
-    with _open_cube(args.old) as old, _open_cube(args.new) as new:
-        drift = compare_cubes(old, new)
-    print(render_drift(drift, args.tolerance))
-    return 1 if drift.exceeds(args.tolerance) else 0
+    result = compare_files(args.old, args.new, args.tolerance)
+    print(result.text)
+    return 1 if result.exceeds else 0
 
 
 def _universal(args: argparse.Namespace) -> int:
-    import numpy as np
-
-    from sweep.report.figures import DPI, draw_universal_map
-    from sweep.universal import universal_dataset
+    from sweep.errors import SweepError
+    from sweep.pipeline import universal_map
 
     if not 0 < args.speed_ratio_max <= 100:
         raise SweepError(f"--speed-ratio-max must be in (0, 100], got {args.speed_ratio_max!r}")
     if not 0 < args.periapsis_ratio_min < 3:
         raise SweepError(f"--periapsis-ratio-min must be in (0, 3), got {args.periapsis_ratio_min!r}")
-    dataset = universal_dataset(np.linspace(0.0, args.speed_ratio_max, 301),
-                                np.geomspace(args.periapsis_ratio_min, 3.0, 121))
-    cube = _write(lambda: write_dataset(dataset, args.out / "universal.nc"), args.out)
-    figure = args.out / "universal_map.png"
-    def draw() -> None:
-        with replacing(figure) as temporary:
-            draw_universal_map(dataset).savefig(temporary, format="png", dpi=DPI, facecolor="white",
-                                                metadata={"Software": None})
-
-    _write(draw, args.out)
+    cube, figure = universal_map(args.out, args.speed_ratio_max, args.periapsis_ratio_min)
     print(f"cube: {cube}")
     print(f"figure: {figure}")
     print("In these units a dive below the target pays above v_inf / v_c = sqrt(2) (two_burn) and above "
@@ -358,6 +169,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     logging.basicConfig(level=level, format="capsweep: %(message)s")
     for handler in logging.getLogger().handlers:  # the file log may lower logger levels; the console keeps its own
         handler.setLevel(level)
+    from sweep.errors import SweepError  # here, not above: --help and --version import nothing of the pipeline
+
     handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot,
                 "universal": _universal, "compare": _compare}
     try:

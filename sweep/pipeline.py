@@ -1,13 +1,79 @@
-"""The pipeline as a library: config -> engine -> cube -> report, for Python callers and the CLI."""
+"""The pipeline as a library: config -> engine -> cube -> report, for Python callers and the CLI.
+
+:func:`run` and :func:`run_to_file` are the bare evaluations (in memory, or streamed to a file).
+:func:`run_sweep` is what ``capsweep run`` does, for a Python caller too: skip an up-to-date cube,
+check the room, hold the output folder's lock, log beside the outputs, resume from checkpoints,
+then write the figures and the summary. :func:`summarize_cube`, :func:`plot_cube`,
+:func:`compare_files`, :func:`universal_map`, :func:`check_text` and :func:`bodies_text` are the
+other commands. Nothing here prints: the text is returned, and progress is logged.
+"""
 
 from __future__ import annotations
 
-from sweep.cube.conventions import build_dataset
+import hashlib
+import logging
+import math
+import os
+import shutil
+import time
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TypeVar
+
+import xarray as xr
+
+from sweep.atomic import replacing
+from sweep.catalog import catalog
+from sweep.config import SweepConfig
+from sweep.cube.conventions import build_dataset, fingerprint
 from sweep.cube.netcdf import write_dataset
 from sweep.engine.grid import speeds_per_chunk
-from sweep.engine.impulsive import STREAM_CHUNK_POINTS, add_placeholders, evaluate, prepare, sweep_chunks
+from sweep.engine.impulsive import (
+    STREAM_CHUNK_POINTS,
+    add_placeholders,
+    estimate_bytes,
+    estimate_memory,
+    evaluate,
+    prepare,
+    sweep_chunks,
+)
+from sweep.errors import SweepError
+from sweep.lock import output_lock
+from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.report.summary import answers, summary_tables, write_summary
 
-__all__ = ["run", "run_to_file"]
+__all__ = [
+    "DEFAULT_OUT",
+    "CompareResult",
+    "ReportFiles",
+    "RunResult",
+    "bodies_text",
+    "check_text",
+    "compare_files",
+    "open_checked_cube",
+    "plot_cube",
+    "run",
+    "run_sweep",
+    "run_to_file",
+    "short_answer",
+    "summarize_cube",
+    "universal_map",
+]
+
+DEFAULT_OUT = Path("outputs")
+"""Where outputs go without an explicit folder: ``outputs/<config name>/``, ``outputs/universal/``."""
+
+CUBE_VARIABLES = ("best_strategy", "saving_over_direct", "status", "crossover_v_inf")
+"""Variables every capsweep cube has; a netCDF file lacking one is not a capsweep cube."""
+
+LOG_NAME = "capsweep.log"
+_CAUTION = ("Preliminary patched-conic estimates (impulsive burns; simple finite burns where a thrust axis is given): "
+           "verify with higher-fidelity propagation.")
+
+logger = logging.getLogger(__name__)
+_T = TypeVar("_T")
 
 
 def run(config, workers: int | None = None, progress: bool = False, scheduler: str | None = None, checkpoint=None):
@@ -31,3 +97,367 @@ def run_to_file(config, path, workers: int | None = None, progress: bool = False
     stream = sweep_chunks(config, plans, workers=workers, progress=progress, points_per_chunk=points_per_chunk)
     return write_dataset(dataset, path, compression, stream=stream,
                          speeds_per_chunk=speeds_per_chunk(config.shape, points_per_chunk))
+
+
+@dataclass(frozen=True)
+class ReportFiles:
+    """The report files written from a cube.
+
+    Attributes
+    ----------
+    summary : list of Path
+        ``summary.md`` first, then the CSV tables; empty when no summary was written.
+    figures : list of Path
+        The PNG figures; empty when none were drawn.
+    """
+
+    summary: list[Path] = field(default_factory=list)
+    figures: list[Path] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """What :func:`run_sweep` did.
+
+    Attributes
+    ----------
+    cube : Path
+        The netCDF cube (written by this call, or the up-to-date one found).
+    folder : Path
+        The output folder.
+    summary, figures : list of Path
+        As in :class:`ReportFiles`; empty when ``skipped``.
+    elapsed : float
+        Seconds spent evaluating and writing the cube; 0 when ``skipped``.
+    points : int
+        Grid points (body x v_inf x target_altitude x periapsis_altitude).
+    strategies : int
+        Strategies evaluated at each point.
+    skipped : bool
+        True when the cube was already up to date and nothing was written.
+    answer : str
+        The plain-language answer (:func:`short_answer`); "" when ``skipped``.
+    """
+
+    cube: Path
+    folder: Path
+    summary: list[Path]
+    figures: list[Path]
+    elapsed: float
+    points: int
+    strategies: int
+    skipped: bool
+    answer: str = ""
+
+
+@dataclass(frozen=True)
+class CompareResult:
+    """A drift report between two cubes: its text, and whether it exceeds the tolerance."""
+
+    text: str
+    exceeds: bool
+
+
+def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers: int | None = None,
+              force: bool = False, compression: int = 0, scheduler: str | None = None, progress: bool = False,
+              figures: bool = True) -> RunResult:
+    """
+    Evaluate ``config`` into ``folder`` as ``capsweep run`` does: cube, figures, summary.
+
+    Parameters
+    ----------
+    config : SweepConfig
+        From :func:`sweep.config.load_config` or :func:`sweep.config.parse_config`.
+    folder : str or Path, optional
+        Output folder; default ``outputs/<config name>/``.
+    workers : int, optional
+        Bound on threads and processes for every stage, figures included; default every core.
+    force : bool
+        Recompute even when the cube is up to date, and run even when the size estimate
+        exceeds the free disk or memory.
+    compression : int
+        zlib level 1-9 for the cube, 0 for none.
+    scheduler : str, optional
+        Address of a Dask distributed scheduler for the finite burns (no checkpoints then).
+    progress : bool
+        Show a progress bar (else progress is logged).
+    figures : bool
+        Draw the PNG figures (the summary links those present).
+
+    Returns
+    -------
+    RunResult
+
+    Raises
+    ------
+    SweepError
+        The folder cannot be written, the grid would not fit (without ``force``), or any
+        write fails; :class:`sweep.lock.LockError` when another live process holds the folder.
+
+    Notes
+    -----
+    A cube recording the same config hash, body-catalog hash and capsweep version is up to
+    date: nothing is written and the result has ``skipped=True``. One writer per folder: the
+    lock is held from the first write to the last. Finished finite-burn chunks are kept in a
+    checkpoint folder named by the inputs, so a killed run resumes; it goes once the cube lands.
+    """
+    folder = Path(folder) if folder is not None else DEFAULT_OUT / config.name
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
+        raise SweepError(f"workers must be None (all cores) or a positive count, got {workers!r}")
+    cube_path = folder / f"{config.name}.nc"
+    checkpoint = checkpoint_folder(config, folder)
+    points = math.prod(config.shape)
+    if not force and up_to_date(cube_path, config):
+        shutil.rmtree(checkpoint, ignore_errors=True)  # left by a run killed after its cube landed
+        logger.info("up to date: %s", cube_path)
+        return RunResult(cube_path, folder, [], [], 0.0, points, 0, True)
+    if not force:
+        check_room(config, folder, workers)
+    check_writable(folder)
+    # Checkpoints are kept even with force: they are keyed by the same config, catalog and
+    # version, so loading them gives the same cube, and a forced run that is killed resumes.
+    with output_lock(folder), _log_file(folder / LOG_NAME):
+        logger.info("run of %s into %s", config.path, folder)
+        started = time.perf_counter()
+        # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
+        cube = _writing(folder, lambda: run_to_file(
+            config, cube_path, workers=workers, progress=progress, scheduler=scheduler,
+            checkpoint=None if scheduler else checkpoint, compression=compression))
+        elapsed = time.perf_counter() - started
+        shutil.rmtree(checkpoint, ignore_errors=True)  # the cube has landed
+        with open_checked_cube(cube) as dataset:
+            report = _write_report(dataset, folder, workers, figures=figures)
+            return RunResult(Path(cube), folder, report.summary, report.figures, elapsed,
+                             int(dataset["best_strategy"].size), int(dataset.sizes["strategy"]), False,
+                             short_answer(dataset))
+
+
+def summarize_cube(path: str | Path, folder: str | Path | None = None, workers: int | None = None) -> ReportFiles:
+    """
+    Rebuild the summary and figures of an existing cube into ``folder`` (default: the cube's).
+
+    The cube is checked first (:func:`open_checked_cube`, then its tables), so an unreadable or
+    inconsistent cube raises :class:`SweepError` before anything is written.
+    """
+    path = Path(path)
+    folder = Path(folder) if folder is not None else path.parent
+    with open_checked_cube(path) as dataset:
+        summary_tables(dataset)  # fail before writing anything if the cube is inconsistent
+        return _write_report(dataset, folder, workers)
+
+
+def plot_cube(path: str | Path, folder: str | Path | None = None, workers: int | None = None) -> list[Path]:
+    """Draw the PNG figures of an existing cube into ``folder`` (default: the cube's); return their paths."""
+    path = Path(path)
+    folder = Path(folder) if folder is not None else path.parent
+    with open_checked_cube(path) as dataset:
+        return _writing(folder, lambda: _draw_figures(dataset, folder, workers))
+
+
+def compare_files(old: str | Path, new: str | Path, tolerance: float) -> CompareResult:
+    """The drift report between two cube files, and whether a relative change exceeds ``tolerance``."""
+    from sweep.report.compare import compare_cubes, render_drift
+
+    with open_checked_cube(old) as before, open_checked_cube(new) as after:
+        drift = compare_cubes(before, after)
+    return CompareResult(render_drift(drift, tolerance), bool(drift.exceeds(tolerance)))
+
+
+def universal_map(folder: str | Path | None = None, speed_ratio_max: float = 3.0,
+                  periapsis_ratio_min: float = 0.05) -> tuple[Path, Path]:
+    """
+    Write the dimensionless regime map's cube and figure into ``folder`` (default ``outputs/universal/``).
+
+    The sweep covers v_inf / v_circular(target) from 0 to ``speed_ratio_max`` (301 values) and
+    r_periapsis / r_target from ``periapsis_ratio_min`` to 3 (121 values, geometric).
+
+    Returns
+    -------
+    tuple of Path
+        The cube ``universal.nc`` and the figure ``universal_map.png``.
+    """
+    import numpy as np
+
+    from sweep.report.figures import DPI, draw_universal_map
+    from sweep.universal import universal_dataset
+
+    folder = Path(folder) if folder is not None else DEFAULT_OUT / "universal"
+    dataset = universal_dataset(np.linspace(0.0, speed_ratio_max, 301), np.geomspace(periapsis_ratio_min, 3.0, 121))
+    cube = _writing(folder, lambda: write_dataset(dataset, folder / "universal.nc"))
+    figure = folder / "universal_map.png"
+
+    def draw() -> None:
+        with replacing(figure) as temporary:
+            draw_universal_map(dataset).savefig(temporary, format="png", dpi=DPI, facecolor="white",
+                                                metadata={"Software": None})
+
+    _writing(folder, draw)
+    return Path(cube), figure
+
+
+def check_text(config: SweepConfig) -> str:
+    """What ``capsweep check`` reports: the config's grid, its points and the cube's size, one fact a line."""
+    shape = config.shape
+    points = math.prod(shape)
+    lines = [f"{config.path}: valid", f"  name: {config.name}", f"  bodies: {', '.join(b.name for b in config.bodies)}"]
+    for label, values, unit in (("v_inf", config.v_inf, "km/s"), ("target_altitude", config.target_altitude, "km"),
+                                ("periapsis_altitude", config.periapsis_altitude, "km")):
+        lines.append(f"  {label}: {values.size} values, {values[0]:g} to {values[-1]:g} {unit}")
+    lines.append(f"  grid shape (body, v_inf, target_altitude, periapsis_altitude): {shape}")
+    lines.append(f"  points: {points:,} (x 3 strategies)")
+    if config.thrust is not None:
+        ratio = config.thrust / (config.arrival_mass * STANDARD_GRAVITY)
+        lines.append(f"  thrust: {config.thrust.size} values, {config.thrust[0]:,.6g} to {config.thrust[-1]:,.6g} N "
+                     f"(thrust-to-weight {ratio[0]:.3g} to {ratio[-1]:.3g}), {config.steering} steering")
+        lines.append(f"  finite-burn points: {points * config.thrust.size:,} (x 3 strategies, each burn integrated)")
+    lines.append(f"  cube size, uncompressed: about {size_text(estimate_bytes(config))}")
+    lines.append(f"  memory for the run's results (streamed to the cube chunk by chunk), on all cores: about "
+                 f"{size_text(estimate_memory(config))}")
+    return "\n".join(lines)
+
+
+def bodies_text() -> str:
+    """The body catalog, one block per body, each value with its source."""
+    lines = []
+    for name, body in catalog().items():
+        lines.append(f"{name}")
+        lines.append(f"  gm {body.gm / 1e9:.10g} km3 s-2  [{body.sources.get('gm', '')}]")
+        lines.append(f"  mean radius {body.radius / 1e3:g} km  [{body.sources.get('radius', '')}]")
+        lines.append(f"  lowest safe periapsis altitude {body.safe_periapsis_altitude / 1e3:g} km  "
+                     f"[{body.sources.get('safe_periapsis_altitude', '')}]")
+        if body.parent:
+            lines.append(f"  parent {body.parent}, semi-major axis {body.semi_major_axis / 1e3:.10g} km  "
+                         f"[{body.sources.get('semi_major_axis', '')}]")
+            lines.append(f"  sphere of influence {body.sphere_of_influence / 1e3:,.0f} km, Hill radius "
+                         f"{body.hill_radius / 1e3:,.0f} km  [computed: a (m/M)^(2/5), a (m/3M)^(1/3)]")
+    return "\n".join(lines)
+
+
+def short_answer(dataset: xr.Dataset) -> str:
+    """The summary's plain-language answers, one block per body, and the caution."""
+    out = []
+    for body, sentences in answers(dataset).items():
+        out.append(f"{body}:")
+        out += [f"  {sentence}" for sentence in sentences]
+    out.append(_CAUTION)
+    return "\n".join(out)
+
+
+def open_checked_cube(path: str | Path) -> xr.Dataset:
+    """Open a cube written by ``capsweep run``, or raise SweepError naming the file and what is wrong."""
+    try:
+        dataset = xr.open_dataset(path, engine="netcdf4")
+    except FileNotFoundError as err:
+        raise SweepError(f"{path}: cube not found") from err
+    except (OSError, ValueError) as err:
+        reason = str(err).splitlines()[0] if str(err) else type(err).__name__
+        raise SweepError(f"{path}: not a readable netCDF cube ({reason})") from err
+    missing = [name for name in CUBE_VARIABLES if name not in dataset]
+    if missing:
+        dataset.close()
+        raise SweepError(f"{path}: not a capsweep cube (lacks {', '.join(missing)})")
+    return dataset
+
+
+def checkpoint_folder(config: SweepConfig, folder: Path) -> Path:
+    """The folder of finished finite-burn chunks: named by the inputs and version, so only a same run resumes."""
+    key = hashlib.sha256("".join(fingerprint(config).values()).encode()).hexdigest()[:16]
+    return folder / f".{config.name}.{key}.chunks"
+
+
+def up_to_date(cube: Path, config: SweepConfig) -> bool:
+    """The cube exists (writes are atomic, so it is complete) and records the same inputs and version."""
+    if not cube.is_file():
+        return False
+    expected = fingerprint(config)
+    try:
+        with xr.open_dataset(cube, engine="netcdf4") as existing:
+            return all(existing.attrs.get(key) == value for key, value in expected.items())
+    except (OSError, ValueError):
+        return False
+
+
+def check_room(config: SweepConfig, folder: Path, workers: int | None) -> None:
+    """Refuse a grid whose cube would not fit on the disk, or whose results would not fit in memory."""
+    cube, memory = estimate_bytes(config), estimate_memory(config, workers)
+    existing = next(p for p in (folder, *folder.absolute().parents) if p.exists())
+    free_disk, free_memory = shutil.disk_usage(existing).free, _available_memory()
+    hint = "shrink the grid, or pass --force to run anyway"
+    if cube > free_disk:
+        raise SweepError(f"{config.path}: grid: the cube would take about {size_text(cube)} uncompressed, but "
+                         f"{existing} has {size_text(free_disk)} free; {hint}")
+    if free_memory is not None and memory > free_memory:
+        raise SweepError(f"{config.path}: grid: the run would hold about {size_text(memory)} of results in memory, "
+                         f"but {size_text(free_memory)} is available; {hint}")
+
+
+def check_writable(folder: Path) -> None:
+    """Fail before any work if the output folder cannot be made or written to."""
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        probe = folder / f".capsweep-write-test-{os.getpid()}"
+        probe.write_bytes(b"")
+        probe.unlink()
+    except OSError as err:
+        raise SweepError(f"{err.filename or folder}: output folder cannot be written: "
+                         f"{err.strerror or err} (choose another with --out)") from err
+
+
+def size_text(count: float) -> str:
+    """A byte count for people: ``512 B``, ``1.5 KiB`` ... ``2.0 TiB``."""
+    for unit in ("B", "KiB", "MiB", "GiB", "TiB"):
+        if count < 1024 or unit == "TiB":
+            return f"{count:.1f} {unit}" if unit != "B" else f"{int(count)} B"
+        count /= 1024
+    return ""
+
+
+def _available_memory() -> int | None:
+    """Memory available to a new process, bytes (Linux MemAvailable); None where unknown."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as info:
+            for line in info:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return None
+
+
+@contextmanager
+def _log_file(path: Path) -> Iterator[None]:
+    """Copy the run's log lines (INFO and up) to a file beside the outputs."""
+    handler = logging.FileHandler(path, encoding="utf-8")
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    handler.setLevel(logging.INFO)
+    library = logging.getLogger("sweep")
+    previous = library.level
+    library.addHandler(handler)
+    library.setLevel(min(previous or logging.WARNING, logging.INFO))
+    try:
+        yield
+    finally:
+        library.removeHandler(handler)
+        library.setLevel(previous)
+        handler.close()
+
+
+def _write_report(dataset: xr.Dataset, folder: Path, workers: int | None, figures: bool = True) -> ReportFiles:
+    drawn = _writing(folder, lambda: _draw_figures(dataset, folder, workers)) if figures else []
+    summary = _writing(folder, lambda: write_summary(dataset, folder))  # after the figures: it links them
+    return ReportFiles(summary, drawn)
+
+
+def _draw_figures(dataset: xr.Dataset, folder: Path, workers: int | None) -> list[Path]:
+    from sweep.report.figures import write_figures  # here, not above: matplotlib loads only for calls that draw
+
+    return write_figures(dataset, folder, workers=workers)
+
+
+def _writing(folder: Path, action: Callable[[], _T]) -> _T:
+    """Run ``action``; an OSError becomes a SweepError naming the file that could not be written."""
+    try:
+        return action()
+    except OSError as err:
+        raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
+

@@ -77,3 +77,38 @@ def cube_contents(path):
 def _raw(values: np.ndarray):
     """Bytes of numeric data; the strings of label variables."""
     return values.tolist() if values.dtype == object else np.ascontiguousarray(values).tobytes()
+
+
+_HOLD_LOCK = """
+import sys, time
+from sweep.lock import output_lock
+with output_lock(sys.argv[1]):
+    print("locked", flush=True)
+    time.sleep(120)
+"""
+
+
+@pytest.fixture
+def lock_holder():
+    """Start a separate process that takes a folder's output lock and keeps it; return the process.
+
+    Call it with the folder; the process is killed at the end of the test if still running.
+    """
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    started = []
+
+    def hold(folder):
+        process = subprocess.Popen([sys.executable, "-c", _HOLD_LOCK, str(folder)], stdout=subprocess.PIPE,
+                                   text=True, cwd=Path(__file__).resolve().parents[1])
+        started.append(process)
+        assert process.stdout.readline() == "locked\n"  # it holds the lock from here on
+        return process
+
+    yield hold
+    for process in started:
+        process.kill()
+        process.wait()
+        process.stdout.close()

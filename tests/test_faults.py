@@ -121,9 +121,9 @@ def test_a_grid_too_big_for_the_disk_is_refused_with_the_estimate(earlier_run, c
 
 
 def test_a_grid_too_big_for_memory_is_refused_with_the_estimate(config_file, tmp_path, capsys, monkeypatch):
-    import sweep.cli
+    import sweep.pipeline
 
-    monkeypatch.setattr(sweep.cli, "_available_memory", lambda: 1_000)
+    monkeypatch.setattr(sweep.pipeline, "_available_memory", lambda: 1_000)
     path = config_file()
     _rejected(capsys, ["run", str(path), "--out", str(tmp_path / "out")],
               r"grid: the run would hold about [\d.]+ KiB of results in memory, but 1000 B is available")
