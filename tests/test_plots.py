@@ -364,3 +364,19 @@ def test_a_figure_kind_registered_at_run_time_is_written_for_each_body(small_cub
         draw_figure(cube, "toy", "mars")
     with pytest.raises(ValueError, match=r"no figure kind 'toy' is registered"):
         unregister_figure("toy")
+
+
+def test_figures_draw_a_strategy_the_figures_were_not_written_for(small_cube, tmp_path):
+    from tests.test_summary import _with_toy
+
+    _, cube = small_cube
+    four = _with_toy(cube.isel(body=[0]))  # mars, with a fourth strategy "toy" (three_burn's crossovers + 0.25)
+    paths = _draw_strictly(four, tmp_path)
+    assert [p.name for p in paths] == ["winner_mars.png", "saving_mars.png"]
+    figure = draw_figure(four, "winner", "mars")
+    labels = [text.get_text() for legend in figure.legends for text in legend.get_texts()]
+    assert "toy" in labels and "toy = direct (crossover speed)" in labels
+    toy = four.toy_crossover_v_inf.isel(body=0).values  # (target, periapsis)
+    drawn = [np.asarray(line.get_xdata(), dtype=float) for ax in figure.axes for line in ax.get_lines()]
+    assert any(np.array_equal(x, toy[:, p], equal_nan=True) for x in drawn for p in range(toy.shape[1])
+               if np.isfinite(toy[:, p]).any())
