@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pandas as pd
 import pytest
 import xarray as xr
 
+from sweep.model.strategies import lookup, register, unregister
 from sweep.report.summary import answers, render_summary, summary_tables
 
 
@@ -125,5 +128,12 @@ def test_a_fourth_strategy_in_the_finite_and_plane_change_sections():
     text = render_summary(plane, tables)
     assert ("With a plane change (direct turns with its burn, two_burn splits the turn, three_burn turns at "
             "apoapsis, toy turns with the apoapsis burn):") not in text  # toy is not registered: no entry to ask
-    assert "three_burn turns at apoapsis, toy turns as its cube records):" in text
+    assert "three_burn turns at apoapsis, toy: turn not described by this version's registry):" in text
+    # registered, toy says how it turns from its registry entry
+    register(replace(lookup("three_burn"), name="toy"))
+    try:
+        text = render_summary(plane, tables)
+    finally:
+        unregister("toy")
+    assert "three_burn turns at apoapsis, toy turns with the apoapsis burn):" in text
     assert "| plane change | points won: direct / two_burn / three_burn / toy | median cost of the turn |" in text

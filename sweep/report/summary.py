@@ -318,8 +318,11 @@ def _finite_section(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -
 
 
 def _turn_phrase(name: str) -> str:
+    """How strategy ``name`` makes the plane change, for the section's heading."""
+    if name in _TURNS:
+        return _TURNS[name]
     entry = lookup(name)
-    return _TURNS.get(name) or f"{name} turns {entry.turn_how if entry else 'as its cube records'}"
+    return f"{name} turns {entry.turn_how}" if entry else f"{name}: turn not described by this version's registry"
 
 
 def _plane_change_section(table: pd.DataFrame, body: str, target: float, names: list[str]) -> list[str]:
