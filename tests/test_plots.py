@@ -6,12 +6,23 @@ import warnings
 
 import numpy as np
 import pytest
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 from matplotlib.image import imread
 from matplotlib.lines import Line2D
 
 from sweep import parse_config, run
 from sweep.cli import main
-from sweep.report.figures import DPI, draw_figure, figure_files, fill_colour, write_figures
+from sweep.report.figures import (
+    DPI,
+    FigureKind,
+    draw_figure,
+    figure_files,
+    fill_colour,
+    register_figure,
+    unregister_figure,
+    write_figures,
+)
 from sweep.report.summary import render_summary, write_summary
 from tests.test_evaluate_finite import FINITE_CONFIG
 
@@ -303,3 +314,69 @@ def test_figures_are_the_same_bytes_on_one_or_two_worker_processes(small_cube, t
     assert [p.name for p in one] == [p.name for p in two] and len(one) >= 6
     assert all(a.read_bytes() == b.read_bytes() for a, b in zip(one, two, strict=True))
     assert not list((tmp_path / "two").glob(".*.part"))
+
+
+# ---- the figure registry -----------------------------------------------------------------------
+
+def _toy_draw(cube):
+    # A one-body cube: the body is selected before anything is read, so no body axis is left.
+    assert "body" not in cube["best_strategy"].dims
+    figure = Figure(figsize=(4.0, 3.0), dpi=DPI)
+    FigureCanvasAgg(figure)
+    figure.subplots().imshow(cube["best_strategy"].isel(periapsis_altitude=0).values.T, aspect="auto")
+    return figure
+
+
+def test_a_figure_kind_registered_at_run_time_is_written_for_each_body(small_cube, tmp_path):
+    _, cube = small_cube
+    cube = cube.isel(body=[0, 1])  # mars and moon: enough to see one file per body
+    before = figure_files(cube)
+    toy = FigureKind("toy", "toy_{body}.png", "a toy figure", lambda dataset: "best_strategy" in dataset, _toy_draw)
+    never = FigureKind("never", "never_{body}.png", "drawn for no cube", lambda dataset: False, _toy_draw)
+    register_figure(toy)
+    register_figure(never)
+    try:
+        with pytest.raises(ValueError, match=r"figure kind 'toy' is registered already"):
+            register_figure(toy)
+        paths = write_figures(cube, tmp_path, workers=1)
+        listed = figure_files(cube)
+        drawn = draw_figure(cube, "toy", "moon")
+    finally:
+        unregister_figure("toy")
+        unregister_figure("never")
+    # After each body's registered kinds, in registry order; the kind that applies to no cube is not drawn.
+    assert listed == [("mars", "winner_mars.png", "Mars: cheapest capture strategy"),
+                      ("mars", "saving_mars.png", "Mars: saving over direct capture"),
+                      ("mars", "toy_mars.png", "Mars: a toy figure"),
+                      ("moon", "winner_moon.png", "Moon: cheapest capture strategy"),
+                      ("moon", "saving_moon.png", "Moon: saving over direct capture"),
+                      ("moon", "toy_moon.png", "Moon: a toy figure")]
+    assert paths == [tmp_path / name for _, name, _ in listed]
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(name for _, name, _ in listed)  # nothing else
+    for body in ("mars", "moon"):
+        assert (tmp_path / f"toy_{body}.png").read_bytes()[:8] == PNG_SIGNATURE
+    # the toy draws the named body's winners: the moon's, not the first body's
+    image = drawn.axes[0].get_images()[0].get_array()
+    assert np.array_equal(image, cube.best_strategy.isel(body=1, periapsis_altitude=0).values.T)
+    # unregistered: gone from the listing and from draw_figure, the built-in kinds as before
+    assert figure_files(cube) == before
+    with pytest.raises(ValueError, match=r"unknown figure kind 'toy' for this cube"):
+        draw_figure(cube, "toy", "mars")
+    with pytest.raises(ValueError, match=r"no figure kind 'toy' is registered"):
+        unregister_figure("toy")
+
+
+def test_figures_draw_a_strategy_the_figures_were_not_written_for(small_cube, tmp_path):
+    from tests.test_summary import _with_toy
+
+    _, cube = small_cube
+    four = _with_toy(cube.isel(body=[0]))  # mars, with a fourth strategy "toy" (three_burn's crossovers + 0.25)
+    paths = _draw_strictly(four, tmp_path)
+    assert [p.name for p in paths] == ["winner_mars.png", "saving_mars.png"]
+    figure = draw_figure(four, "winner", "mars")
+    labels = [text.get_text() for legend in figure.legends for text in legend.get_texts()]
+    assert "toy" in labels and "toy = direct (crossover speed)" in labels
+    toy = four.toy_crossover_v_inf.isel(body=0).values  # (target, periapsis)
+    drawn = [np.asarray(line.get_xdata(), dtype=float) for ax in figure.axes for line in ax.get_lines()]
+    assert any(np.array_equal(x, toy[:, p], equal_nan=True) for x in drawn for p in range(toy.shape[1])
+               if np.isfinite(toy[:, p]).any())

@@ -2,9 +2,14 @@
 
 from __future__ import annotations
 
-import numpy as np
-import pytest
+from dataclasses import replace
 
+import numpy as np
+import pandas as pd
+import pytest
+import xarray as xr
+
+from sweep.model.strategies import lookup, register, unregister
 from sweep.report.summary import answers, render_summary, summary_tables
 
 
@@ -56,3 +61,79 @@ def test_summary_text_carries_answers_crossovers_and_cautions(small_cube):
     assert f"`two_burn` beats direct above {crossing:.2f} km/s" in mars[1]
     assert "no strategy is feasible" in answers(cube)["enceladus"][0]
     assert "sphere_of_influence_too_small 100%" in text
+
+
+# ---- a cube with a strategy the summary was not written for ------------------------------------
+
+def _with_toy(cube):
+    """``cube`` with a fourth strategy "toy": a copy of three_burn whose crossovers are 0.25 km/s higher."""
+    toy = cube.isel(strategy=[list(cube.strategy_name.values).index("three_burn")])
+    toy = toy.assign_coords(strategy_name=("strategy", ["toy"]))
+    ranked = [name for name in cube.data_vars if "strategy" in cube[name].dims]
+    four = xr.concat([cube[ranked], toy[ranked]], dim="strategy")
+    out = cube.drop_vars([*ranked, "strategy_name"]).assign(four).assign_coords(
+        strategy_name=("strategy", [*cube.strategy_name.values, "toy"]))
+    out["toy_crossover_v_inf"] = cube["three_burn_crossover_v_inf"] + 0.25
+    if "finite_three_burn_crossover_v_inf" in cube:
+        out["finite_toy_crossover_v_inf"] = cube["finite_three_burn_crossover_v_inf"] + 0.25
+    return out
+
+
+def test_a_fourth_strategy_gets_its_own_columns_and_headers(small_cube):
+    _, cube = small_cube
+    four = _with_toy(cube)
+    tables = summary_tables(four)
+    assert list(tables["crossover"].columns[3:]) == ["two_burn_crossover_v_inf_km_s",
+                                                     "three_burn_crossover_v_inf_km_s", "toy_crossover_v_inf_km_s"]
+    np.testing.assert_array_equal(tables["crossover"]["toy_crossover_v_inf_km_s"].to_numpy(),
+                                  four.toy_crossover_v_inf.values.ravel())  # rows: body, target, periapsis
+    # the three strategies of before read as before; toy (a tie with three_burn, listed later) wins nowhere
+    before = summary_tables(cube)
+    pd.testing.assert_frame_equal(tables["wins"], before["wins"])
+    pd.testing.assert_frame_equal(tables["crossover"].drop(columns="toy_crossover_v_inf_km_s"), before["crossover"])
+    shares = tables["shares"]
+    assert (shares[shares.strategy == "toy"].points_won == 0).all()
+    pd.testing.assert_frame_equal(shares[shares.strategy != "toy"].reset_index(drop=True), before["shares"])
+    text = render_summary(four, tables)
+    header = ("| periapsis | winner along v_inf (km/s) | two_burn = direct at | three_burn = direct at | "
+              "toy = direct at |")
+    assert text.count(header) == four.sizes["body"] * four.sizes["target_altitude"]
+    assert "|---:|---|---:|---:|---:|" in text
+    # Mars, 5,000 km target, lowest feasible periapsis below it (250 km): toy's crossover is three_burn's + 0.25
+    mars = answers(four, tables)["mars"][1]
+    three = float(cube.three_burn_crossover_v_inf.isel(body=0).sel(target_altitude=5000.0, periapsis_altitude=250.0))
+    assert f"`three_burn` beats direct above {three:.2f} km/s, `toy` beats direct above {three + 0.25:.2f} km/s" in mars
+
+
+def test_a_fourth_strategy_in_the_finite_and_plane_change_sections():
+    from sweep import parse_config, run
+    from tests.test_evaluate_finite import FINITE_CONFIG
+    from tests.test_plane_change import PLANE
+
+    finite = _with_toy(run(parse_config(FINITE_CONFIG, "finite.toml"), workers=1))
+    tables = summary_tables(finite)
+    assert list(tables["finite_crossover"].columns[5:]) == ["two_burn_crossover_v_inf_km_s",
+                                                            "three_burn_crossover_v_inf_km_s",
+                                                            "toy_crossover_v_inf_km_s"]
+    np.testing.assert_array_equal(tables["finite_crossover"]["toy_crossover_v_inf_km_s"].to_numpy(),
+                                  finite.finite_toy_crossover_v_inf.transpose("body", "target_altitude", "thrust",
+                                                                              "periapsis_altitude").values.ravel())
+    text = render_summary(finite, tables)
+    assert "points won: direct / two_burn / three_burn / toy |" in text
+    assert "`two_burn` with periapsis 250 km" in text  # the short answer still follows the low dive
+
+    plane = _with_toy(run(parse_config(PLANE, "plane.toml"), workers=1))
+    tables = summary_tables(plane)
+    assert "share_won_toy" in tables["plane_change"]
+    text = render_summary(plane, tables)
+    assert ("With a plane change (direct turns with its burn, two_burn splits the turn, three_burn turns at "
+            "apoapsis, toy turns with the apoapsis burn):") not in text  # toy is not registered: no entry to ask
+    assert "three_burn turns at apoapsis, toy: turn not described by this version's registry):" in text
+    # registered, toy says how it turns from its registry entry
+    register(replace(lookup("three_burn"), name="toy"))
+    try:
+        text = render_summary(plane, tables)
+    finally:
+        unregister("toy")
+    assert "three_burn turns at apoapsis, toy turns with the apoapsis burn):" in text
+    assert "| plane change | points won: direct / two_burn / three_burn / toy | median cost of the turn |" in text

@@ -1,7 +1,10 @@
 """Where each strategy wins: Markdown and CSV tables built from a cube alone.
 
 Nothing here recomputes physics: every figure is read, counted or located in the Dataset,
-so an old ``.nc`` file summarizes the same way it did when it was written.
+so an old ``.nc`` file summarizes the same way it did when it was written. The cube is read by
+label, one body at a time (:func:`sweep.report.selection.one_body`), and the strategies are the
+cube's own: every column, header and sentence about a challenger is made for each strategy the
+cube names besides the reference (direct).
 """
 
 from __future__ import annotations
@@ -13,24 +16,55 @@ import pandas as pd
 import xarray as xr
 
 from sweep.atomic import replacing
-from sweep.model.strategies import crossover_variable, cube_labels
+from sweep.model.strategies import REFERENCE, crossover_variable, cube_labels, lookup
+from sweep.report.format import km, speed
+from sweep.report.selection import (
+    GRID,
+    array,
+    body_label,
+    challenger_names,
+    lowest_periapsis_below,
+    one_body,
+    strategy_labels,
+)
 
 __all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
 
 _MAX_ROWS = 12  # periapsis rows shown per Markdown table; the CSV has them all
 _DAY = 86400.0  # s
+_TARGET_PERIAPSIS = ("target_altitude", "periapsis_altitude")
+# The finite-burn section's short answer follows this strategy (the low dive), where the cube has it.
+_DIVE = "two_burn"
+# How each strategy makes a plane change, in the plane-change section's heading; others say their registry entry's.
+_TURNS = {"direct": "direct turns with its burn", "two_burn": "two_burn splits the turn",
+          "three_burn": "three_burn turns at apoapsis"}
+_TWO_BURN_SPLIT = "two_burn_first_plane_change"  # the cube variable of two_burn's turn at its first burn
 
 
 def _win_runs(best: np.ndarray, v_inf: np.ndarray, names: list[str]) -> list[tuple[str, float, float]]:
     """Runs of one winner along the v_inf axis: (strategy or 'none', first v_inf, last v_inf)."""
     runs: list[tuple[str, float, float]] = []
-    for value, speed in zip(best, v_inf, strict=True):
+    for value, at in zip(best, v_inf, strict=True):
         label = names[int(value)] if value >= 0 else "none"
         if runs and runs[-1][0] == label:
-            runs[-1] = (label, runs[-1][1], float(speed))
+            runs[-1] = (label, runs[-1][1], float(at))
         else:
-            runs.append((label, float(speed), float(speed)))
+            runs.append((label, float(at), float(at)))
     return runs
+
+
+def _crossovers(cube: xr.Dataset, names: list[str], *dims: str, finite: bool = False) -> dict[str, np.ndarray]:
+    """
+    Each named strategy's crossover speeds in a one-body cube, with dimensions ``dims``; NaN
+    (no crossover) for a strategy whose crossover variable the cube lacks.
+    """
+    shape = tuple(cube.sizes[d] for d in dims)
+    return {n: array(cube, crossover_variable(n, finite), *dims) if crossover_variable(n, finite) in cube
+            else np.full(shape, np.nan) for n in names}
+
+
+def _crossover_columns(names: list[str]) -> list[str]:
+    return [f"{n}_crossover_v_inf_km_s" for n in names]
 
 
 def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
@@ -41,37 +75,38 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     -------
     dict of DataFrame
         ``wins``: runs of one winner along v_inf per body, target and periapsis;
-        ``crossover``: equal-cost arrival speeds; ``shares``: the share of feasible grid
-        points each strategy wins and its largest saving over direct, with where it occurs.
+        ``crossover``: equal-cost arrival speeds, one column per challenger of direct; ``shares``:
+        the share of feasible grid points each strategy wins and its largest saving over direct,
+        with where it occurs.
     """
     bodies, names = cube_labels(dataset)
+    challengers = challenger_names(names)
     v_inf = dataset["v_inf"].values
-    best = dataset["best_strategy"].values
-    saving = dataset["saving_over_direct"].values
-    propellant = dataset["propellant_saving"].values
-    time = dataset["time_to_orbit"].values
+    periapses = dataset["periapsis_altitude"].values
     wins, crossover, shares = [], [], []
-    for b, body in enumerate(bodies):
+    for body in bodies:
+        cube = one_body(dataset, body)
+        best = array(cube, "best_strategy", *GRID)
+        saving = array(cube, "saving_over_direct", *GRID)
+        propellant = array(cube, "propellant_saving", *GRID)
+        time = array(cube, "time_to_orbit", "strategy", *GRID)
+        crossing = _crossovers(cube, challengers, *_TARGET_PERIAPSIS)
         for t, target in enumerate(dataset["target_altitude"].values):
-            for p, periapsis in enumerate(dataset["periapsis_altitude"].values):
-                for label, start, stop in _win_runs(best[b, :, t, p], v_inf, names):
+            for p, periapsis in enumerate(periapses):
+                for label, start, stop in _win_runs(best[:, t, p], v_inf, names):
                     wins.append((body, target, periapsis, label, start, stop))
-                crossover.append((
-                    body, target, periapsis,
-                    float(dataset["crossover_v_inf"].values[b, t, p]),
-                    float(dataset["three_burn_crossover_v_inf"].values[b, t, p]),
-                ))
-            block = best[b, :, t, :]
+                crossover.append((body, target, periapsis, *(float(crossing[n][t, p]) for n in challengers)))
+            block = best[:, t, :]
             feasible = int((block >= 0).sum())
             for code, name in enumerate(names):
                 mask = block == code
                 count = int(mask.sum())
                 row = [body, target, name, count, count / feasible if feasible else np.nan]
-                if count and name != "direct":
-                    where = np.where(mask, saving[b, :, t, :], -np.inf)
+                if count and name != REFERENCE:
+                    where = np.where(mask, saving[:, t, :], -np.inf)
                     v, p = np.unravel_index(np.argmax(where), where.shape)
-                    row += [saving[b, v, t, p], propellant[b, v, t, p], v_inf[v],
-                            float(dataset["periapsis_altitude"].values[p]), time[code, b, v, t, p] / _DAY]
+                    row += [saving[v, t, p], propellant[v, t, p], v_inf[v], float(periapses[p]),
+                            time[code, v, t, p] / _DAY]
                 else:
                     row += [0.0 if count else np.nan, 0.0 if count else np.nan, np.nan, np.nan, np.nan]
                 shares.append(row)
@@ -79,8 +114,7 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
         "wins": pd.DataFrame(wins, columns=["body", "target_altitude_km", "periapsis_altitude_km",
                                             "strategy", "v_inf_from_km_s", "v_inf_to_km_s"]),
         "crossover": pd.DataFrame(crossover, columns=["body", "target_altitude_km", "periapsis_altitude_km",
-                                                      "two_burn_crossover_v_inf_km_s",
-                                                      "three_burn_crossover_v_inf_km_s"]),
+                                                      *_crossover_columns(challengers)]),
         "shares": pd.DataFrame(shares, columns=["body", "target_altitude_km", "strategy", "points_won",
                                                 "share_of_feasible", "max_saving_m_s", "max_propellant_saving_kg",
                                                 "at_v_inf_km_s", "at_periapsis_altitude_km",
@@ -94,56 +128,63 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
 
 
 def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
-    """Per body, target and plane change: share won, median cost of the turn, median two_burn split."""
+    """Per body, target and plane change: share won, median cost of the turn, median two_burn split (if any)."""
     bodies, names = cube_labels(dataset)
-    totals = dataset["plane_change_delta_v"].values  # (S, B, V, T, P, I)
-    best = dataset["plane_change_best_strategy"].values  # (B, V, T, P, I)
-    coplanar = np.fmin.reduce(dataset["delta_v"].values, axis=0)  # (B, V, T, P): least coplanar cost
-    with_turn = np.fmin.reduce(totals, axis=0)
-    share = dataset["two_burn_first_plane_change"].values
+    split_known = _TWO_BURN_SPLIT in dataset
+    turn = (*GRID, "plane_change")
     rows = []
-    for b, body in enumerate(bodies):
+    for body in bodies:
+        cube = one_body(dataset, body)
+        best = array(cube, "plane_change_best_strategy", *turn)
+        # least cost over the strategies, with and without the turn
+        with_turn = np.fmin.reduce(array(cube, "plane_change_delta_v", "strategy", *turn), axis=0)
+        coplanar = np.fmin.reduce(array(cube, "delta_v", "strategy", *GRID), axis=0)
+        share = array(cube, _TWO_BURN_SPLIT, *turn) if split_known else None
         for t, target in enumerate(dataset["target_altitude"].values):
             for i, angle in enumerate(dataset["plane_change"].values):
-                block = best[b, :, t, :, i]
+                block = best[:, t, :, i]
                 feasible = int((block >= 0).sum())
-                cost = (with_turn[b, :, t, :, i] - coplanar[b, :, t, :])
+                cost = (with_turn[:, t, :, i] - coplanar[:, t, :])
                 cost = cost[np.isfinite(cost)]
-                split = share[b, :, t, :, i]
-                split = split[np.isfinite(split)]
                 row = [body, target, angle]
                 row += [(block == s).sum() / feasible if feasible else np.nan for s in range(len(names))]
-                row += [float(np.median(cost)) if cost.size else np.nan,
-                        float(np.median(split)) if split.size else np.nan]
+                row.append(float(np.median(cost)) if cost.size else np.nan)
+                if split_known:
+                    split = share[:, t, :, i]
+                    split = split[np.isfinite(split)]
+                    row.append(float(np.median(split)) if split.size else np.nan)
                 rows.append(row)
     return pd.DataFrame(rows, columns=["body", "target_altitude_km", "plane_change_deg",
-                                       *[f"share_won_{n}" for n in names],
-                                       "median_cost_of_turn_m_s", "median_two_burn_first_share_deg"])
+                                       *[f"share_won_{n}" for n in names], "median_cost_of_turn_m_s",
+                                       *(["median_two_burn_first_share_deg"] if split_known else [])])
 
 
 def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     """Finite-burn crossovers per periapsis and thrust; wins and gravity losses per thrust."""
     bodies, names = cube_labels(dataset)
+    challengers = challenger_names(names)
     meanings = dataset["finite_status"].attrs["flag_meanings"].split()
     engine_codes = [meanings.index(m) for m in ("engine_cannot_capture", "propellant_exhausted", "surface_impact")]
-    loss = (dataset["finite_delta_v"] - dataset["delta_v"]).values  # (S, B, V, T, P, F)
-    best = dataset["finite_best_strategy"].values
-    status = dataset["finite_status"].values
     thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
+    finite = ("strategy", *GRID, "thrust")
     crossing, losses = [], []
-    for b, body in enumerate(bodies):
+    for body in bodies:
+        cube = one_body(dataset, body)
+        loss = (cube["finite_delta_v"] - cube["delta_v"]).transpose(*finite).values
+        best = array(cube, "finite_best_strategy", *GRID, "thrust")
+        status = array(cube, "finite_status", *finite)
+        speeds = _crossovers(cube, challengers, *_TARGET_PERIAPSIS, "thrust", finite=True)
         for t, target in enumerate(dataset["target_altitude"].values):
             for f, thrust in enumerate(thrusts):
                 for p, periapsis in enumerate(dataset["periapsis_altitude"].values):
                     crossing.append((body, target, periapsis, thrust, ratios[f],
-                                     float(dataset["finite_crossover_v_inf"].values[b, t, p, f]),
-                                     float(dataset["finite_three_burn_crossover_v_inf"].values[b, t, p, f])))
-                block = best[b, :, t, :, f]
+                                     *(float(speeds[n][t, p, f]) for n in challengers)))
+                block = best[:, t, :, f]
                 feasible = int((block >= 0).sum())
                 for s, name in enumerate(names):
-                    values = loss[s, b, :, t, :, f]
+                    values = loss[s, :, t, :, f]
                     flown = values[np.isfinite(values)]
-                    engine = np.isin(status[s, b, :, t, :, f], engine_codes).mean()
+                    engine = np.isin(status[s, :, t, :, f], engine_codes).mean()
                     won = int((block == s).sum())
                     losses.append((body, target, thrust, ratios[f], name, won, won / feasible if feasible else np.nan,
                                    float(np.median(flown)) if flown.size else np.nan,
@@ -151,28 +192,20 @@ def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     return {
         "finite_crossover": pd.DataFrame(crossing, columns=[
             "body", "target_altitude_km", "periapsis_altitude_km", "thrust_n", "thrust_to_weight",
-            "two_burn_crossover_v_inf_km_s", "three_burn_crossover_v_inf_km_s"]),
+            *_crossover_columns(challengers)]),
         "finite_losses": pd.DataFrame(losses, columns=[
             "body", "target_altitude_km", "thrust_n", "thrust_to_weight", "strategy", "points_won",
             "share_of_feasible", "median_gravity_loss_m_s", "max_gravity_loss_m_s", "share_engine_limited"]),
     }
 
 
-def _orbit_name(dataset: xr.Dataset, b: int, t: int) -> str:
-    """'400 km circular orbit', or '400 x 20,000 km orbit' for an elliptical target."""
-    target = float(dataset["target_altitude"].values[t])
-    if "target_apoapsis_altitude" not in dataset:
-        return f"{_km(target)} circular orbit"
-    apoapsis = float(dataset["target_apoapsis_altitude"].values[b, t])
-    return f"{target:,.0f} x {_km(apoapsis)} orbit (periapsis x apoapsis altitude)"
-
-
-def _km(value: float) -> str:
-    return f"{value:,.0f} km" if value >= 10 else f"{value:g} km"
-
-
-def _speed(value: float) -> str:
-    return "none" if not np.isfinite(value) else f"{value:.2f} km/s"
+def _orbit_name(cube: xr.Dataset, t: int) -> str:
+    """'400 km circular orbit', or '400 x 20,000 km orbit' for an elliptical target (one-body cube)."""
+    target = float(cube["target_altitude"].values[t])
+    if "target_apoapsis_altitude" not in cube:
+        return f"{km(target)} circular orbit"
+    apoapsis = float(cube["target_apoapsis_altitude"].isel(target_altitude=t))
+    return f"{target:,.0f} x {km(apoapsis)} orbit (periapsis x apoapsis altitude)"
 
 
 def _rows_to_show(count: int) -> list[int]:
@@ -181,11 +214,11 @@ def _rows_to_show(count: int) -> list[int]:
     return sorted({int(round(i)) for i in np.linspace(0, count - 1, _MAX_ROWS)})
 
 
-def _status_lines(dataset: xr.Dataset, b: int, names: list[str]) -> list[str]:
-    meanings = dataset["status"].attrs["flag_meanings"].split()
+def _status_lines(cube: xr.Dataset, names: list[str]) -> list[str]:
+    meanings = cube["status"].attrs["flag_meanings"].split()
     lines = []
-    for s, name in enumerate(names):
-        codes, counts = np.unique(dataset["status"].values[s, b], return_counts=True)
+    for name in names:
+        codes, counts = np.unique(cube["status"].sel(strategy=name).values, return_counts=True)
         total = counts.sum()
         parts = [f"{meanings[c]} {n / total:.0%}" for c, n in zip(codes, counts, strict=True) if c != 0]
         if parts:
@@ -193,68 +226,65 @@ def _status_lines(dataset: xr.Dataset, b: int, names: list[str]) -> list[str]:
     return lines
 
 
-def _answer(body: str, target: float, dataset: xr.Dataset, b: int, t: int, shares: pd.DataFrame) -> str:
-    """One plain-language sentence pair for a body and target altitude."""
-    periapses = dataset["periapsis_altitude"].values
-    two_burn = cube_labels(dataset)[1].index("two_burn")
-    feasible = np.flatnonzero(dataset["status"].values[two_burn, b, 0, t] == 0)
+def _against_direct(cube: xr.Dataset, name: str, t: int, p: int) -> str:
+    """How challenger ``name`` compares with direct along v_inf at target ``t`` and periapsis ``p`` (one body)."""
+    variable = crossover_variable(name)
+    if variable not in cube:
+        return f"`{name}`: no crossover speeds in the cube"
+    at = {"target_altitude": t, "periapsis_altitude": p}
+    cross = float(cube[variable].isel(at))
+    attrs = cube[variable].attrs
+    searched = f"{attrs.get('valid_min')} to {attrs.get('valid_max')} km/s"
+    if np.isfinite(cross):
+        return f"`{name}` beats direct above {cross:.2f} km/s"
+    delta_v = cube["delta_v"].isel(at)
+    if (int(cube["status"].sel(strategy=name).isel(v_inf=0, **at)) == 0
+            and bool((delta_v.sel(strategy=name) < delta_v.sel(strategy=REFERENCE)).all())):
+        return f"`{name}` beats direct at every arrival speed ({searched} searched)"
+    return f"`{name}` does not beat direct between {searched}"
+
+
+def _answer(cube: xr.Dataset, t: int, shares: pd.DataFrame) -> str:
+    """One plain-language sentence pair for a body (one-body cube) and target altitude."""
+    body, target = body_label(cube), cube["target_altitude"].values[t]
+    challengers = challenger_names(strategy_labels(cube))
     here = shares[(shares.body == body) & (shares.target_altitude_km == target)].set_index("strategy")
     if here["points_won"].sum() == 0:
-        return f"For a {_km(target)} orbit no strategy is feasible on this grid (see the status lines)."
+        return f"For a {km(target)} orbit no strategy is feasible on this grid (see the status lines)."
     sentences = []
-    lower = [p for p in feasible if periapses[p] < target]
-    if lower:
-        p = lower[0]
-        index = {name: i for i, name in enumerate(cube_labels(dataset)[1])}
-        delta_v = dataset["delta_v"].values
-        phrases = []
-        for name in cube_labels(dataset)[1][1:]:
-            variable = crossover_variable(name)
-            cross = dataset[variable].values[b, t, p]
-            attrs = dataset[variable].attrs
-            searched = f"{attrs.get('valid_min')} to {attrs.get('valid_max')} km/s"
-            if np.isfinite(cross):
-                phrases.append(f"`{name}` beats direct above {cross:.2f} km/s")
-            elif (dataset["status"].values[index[name], b, 0, t, p] == 0
-                  and (delta_v[index[name], b, :, t, p] < delta_v[index["direct"], b, :, t, p]).all()):
-                phrases.append(f"`{name}` beats direct at every arrival speed ({searched} searched)")
-            else:
-                phrases.append(f"`{name}` does not beat direct between {searched}")
-        lowest = f"with periapsis at {_km(periapses[p])} (the lowest feasible on the grid), "
-        sentences.append(lowest + ", ".join(phrases))
-    challengers = here.drop(index="direct")["max_saving_m_s"]
-    if challengers.notna().any() and challengers.max() > 0:
-        name = challengers.idxmax()
+    p = lowest_periapsis_below(cube, challengers, t)
+    if p is not None:
+        lowest = f"with periapsis at {km(cube['periapsis_altitude'].values[p])} (the lowest feasible on the grid), "
+        sentences.append(lowest + ", ".join(_against_direct(cube, name, t, p) for name in challengers))
+    saving = here.drop(index=REFERENCE)["max_saving_m_s"]
+    if saving.notna().any() and saving.max() > 0:
+        name = saving.idxmax()
         row = here.loc[name]
         sentences.append(
             f"the largest saving over direct is {row.max_saving_m_s:.0f} m/s ({row.max_propellant_saving_kg:.0f} kg "
             f"of propellant) with `{name}` at {row.at_v_inf_km_s:g} km/s and periapsis "
-            f"{_km(row.at_periapsis_altitude_km)}, reaching orbit {row.at_time_to_orbit_days:.1f} days after arrival"
+            f"{km(row.at_periapsis_altitude_km)}, reaching orbit {row.at_time_to_orbit_days:.1f} days after arrival"
         )
     else:
         sentences.append("direct capture is never beaten on this grid")
     won = ", ".join(f"`{name}` {share:.0%}" for name, share in here["share_of_feasible"].items() if share > 0)
-    return f"For a {_km(target)} orbit: " + "; ".join(sentences) + f". Share of feasible points won: {won}."
+    return f"For a {km(target)} orbit: " + "; ".join(sentences) + f". Share of feasible points won: {won}."
 
 
 def answers(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None) -> dict[str, list[str]]:
     """Plain-language answer per body: one sentence group per target altitude."""
     tables = tables or summary_tables(dataset)
     bodies, _ = cube_labels(dataset)
-    targets = dataset["target_altitude"].values
-    return {
-        body: [_answer(body, target, dataset, b, t, tables["shares"]) for t, target in enumerate(targets)]
-        for b, body in enumerate(bodies)
-    }
+    targets = range(dataset.sizes["target_altitude"])
+    return {body: [_answer(one_body(dataset, body), t, tables["shares"]) for t in targets] for body in bodies}
 
 
-def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int, t: int) -> list[str]:
-    """How the answer moves with thrust: crossovers at the lowest feasible periapsis, wins, losses."""
-    bodies, names = cube_labels(dataset)
-    body, target = bodies[b], float(dataset["target_altitude"].values[t])
-    periapses = dataset["periapsis_altitude"].values
-    two_burn = names.index("two_burn")
-    feasible = [p for p in np.flatnonzero(dataset["status"].values[two_burn, b, 0, t] == 0) if periapses[p] < target]
+def _finite_section(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -> list[str]:
+    """How the answer moves with thrust (one-body cube): crossovers at the lowest feasible periapsis, wins, losses."""
+    names = strategy_labels(cube)
+    body, target = body_label(cube), float(cube["target_altitude"].values[t])
+    periapses = cube["periapsis_altitude"].values
+    dive = lowest_periapsis_below(cube, [_DIVE], t) if _DIVE in names else None
     losses = tables["finite_losses"]
     here = losses[(losses.body == body) & (losses.target_altitude_km == target)]
     lines = ["With finite burns (gravity losses included; see the model in the cube's attributes):", ""]
@@ -262,22 +292,22 @@ def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int
         " / ".join(names) + " | engine-limited |"
     lines += [header, "|---:|---:|---|---|---|"]
     sentences = []
-    for f, thrust in enumerate(dataset["thrust"].values):
+    for f, thrust in enumerate(cube["thrust"].values):
         rows = here[here.thrust_n == thrust].set_index("strategy").loc[names]
-        ratio = float(dataset["thrust_to_weight"].values[f])
+        ratio = float(cube["thrust_to_weight"].values[f])
         won = " / ".join(f"{share:.0%}" if np.isfinite(share) else "-" for share in rows.share_of_feasible)
         loss = " / ".join("-" if not np.isfinite(m) else f"{m:.0f} ({x:.0f})"
                           for m, x in zip(rows.median_gravity_loss_m_s, rows.max_gravity_loss_m_s, strict=True))
         limited = " / ".join(f"{share:.0%}" for share in rows.share_engine_limited)
         lines.append(f"| {thrust:,.0f} N | {ratio:.3g} | {won} | {loss} | {limited} |")
-        if feasible:
-            p = feasible[0]
-            finite = dataset["finite_crossover_v_inf"].values[b, t, p, f]
-            impulsive = dataset["crossover_v_inf"].values[b, t, p]
+        if dive is not None:
+            at = {"target_altitude": t, "periapsis_altitude": dive}
+            finite = float(cube[crossover_variable(_DIVE, finite=True)].isel(at).isel(thrust=f))
+            impulsive = float(cube[crossover_variable(_DIVE)].isel(at))
             text = (f"pays above {finite:.2f} km/s" if np.isfinite(finite)
                     else "has no crossover with direct within the grid's speeds")
-            sentences.append(f"at T/W {ratio:.3g} ({thrust:,.0f} N) `two_burn` with periapsis {_km(periapses[p])} "
-                             f"{text} (impulsive: {_speed(impulsive)})")
+            sentences.append(f"at T/W {ratio:.3g} ({thrust:,.0f} N) `{_DIVE}` with periapsis {km(periapses[dive])} "
+                             f"{text} (impulsive: {speed(impulsive)})")
     lines.append("")
     if sentences:
         lines += ["In short: " + "; ".join(sentences) + ".", ""]
@@ -287,19 +317,30 @@ def _finite_section(dataset: xr.Dataset, tables: dict[str, pd.DataFrame], b: int
     return lines
 
 
+def _turn_phrase(name: str) -> str:
+    """How strategy ``name`` makes the plane change, for the section's heading."""
+    if name in _TURNS:
+        return _TURNS[name]
+    entry = lookup(name)
+    return f"{name} turns {entry.turn_how}" if entry else f"{name}: turn not described by this version's registry"
+
+
 def _plane_change_section(table: pd.DataFrame, body: str, target: float, names: list[str]) -> list[str]:
     here = table[(table.body == body) & (table.target_altitude_km == target)]
-    lines = ["With a plane change (direct turns with its burn, two_burn splits the turn, three_burn turns at "
-             "apoapsis):", "",
-             "| plane change | points won: " + " / ".join(names) + " | median cost of the turn | "
-             "median two_burn turn at its first burn |", "|---:|---|---:|---:|"]
+    split_known = "median_two_burn_first_share_deg" in table
+    lines = ["With a plane change (" + ", ".join(_turn_phrase(n) for n in names) + "):", "",
+             "| plane change | points won: " + " / ".join(names) + " | median cost of the turn |"
+             + (" median two_burn turn at its first burn |" if split_known else ""),
+             "|---:|---|---:|" + ("---:|" if split_known else "")]
     for row in here.itertuples(index=False):
         won = " / ".join("-" if not np.isfinite(v) else f"{v:.0%}"
                          for v in (getattr(row, f"share_won_{n}") for n in names))
         cost = "-" if not np.isfinite(row.median_cost_of_turn_m_s) else f"{row.median_cost_of_turn_m_s:.0f} m/s"
-        split = "-" if not np.isfinite(row.median_two_burn_first_share_deg) else \
-            f"{row.median_two_burn_first_share_deg:.2f} deg"
-        lines.append(f"| {row.plane_change_deg:g} deg | {won} | {cost} | {split} |")
+        cells = [f"{row.plane_change_deg:g} deg", won, cost]
+        if split_known:
+            cells.append("-" if not np.isfinite(row.median_two_burn_first_share_deg) else
+                         f"{row.median_two_burn_first_share_deg:.2f} deg")
+        lines.append("| " + " | ".join(cells) + " |")
     return lines + ["", "Cost of the turn: least delta-v with the plane change minus least delta-v without it.", ""]
 
 
@@ -313,10 +354,10 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     """
     tables = tables or summary_tables(dataset)
     bodies, names = cube_labels(dataset)
+    challengers = challenger_names(names)
     sentences = answers(dataset, tables)
     v_inf = dataset["v_inf"].values
     periapses = dataset["periapsis_altitude"].values
-    best = dataset["best_strategy"].values
     points = int(np.prod([dataset.sizes[d] for d in dataset["best_strategy"].dims]))
     lines = [
         f"# {dataset.attrs.get('title', 'capsweep summary')}",
@@ -333,39 +374,40 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
         "Strategies: " + dataset.attrs.get("strategies", ""),
         "",
     ]
-    for b, body in enumerate(bodies):
+    for body in bodies:
+        cube = one_body(dataset, body)
+        best = array(cube, "best_strategy", *GRID)
+        crossing = _crossovers(cube, challengers, *_TARGET_PERIAPSIS)
         lines += [
             f"## {body.capitalize()}",
             "",
-            f"GM {float(dataset['body_gm'][b]):.6g} m3/s2, mean radius {float(dataset['body_radius'][b]):,.1f} km, "
-            f"lowest safe periapsis {float(dataset['body_safe_periapsis_altitude'][b]):g} km, sphere of influence "
-            f"{float(dataset['sphere_of_influence_radius'][b]):,.0f} km, apoapsis bound "
-            f"{float(dataset['apoapsis_bound'][b]):,.0f} km.",
+            f"GM {float(cube['body_gm']):.6g} m3/s2, mean radius {float(cube['body_radius']):,.1f} km, "
+            f"lowest safe periapsis {float(cube['body_safe_periapsis_altitude']):g} km, sphere of influence "
+            f"{float(cube['sphere_of_influence_radius']):,.0f} km, apoapsis bound "
+            f"{float(cube['apoapsis_bound']):,.0f} km.",
             "",
         ]
         for _, name, title in [f for f in figures or [] if f[0] == body]:
             lines += [f"![{title}]({name})", ""]
         for t, target in enumerate(dataset["target_altitude"].values):
-            lines += [f"### {body.capitalize()}, {_orbit_name(dataset, b, t)}", "",
+            lines += [f"### {body.capitalize()}, {_orbit_name(cube, t)}", "",
                       sentences[body][t], ""]
             shown = _rows_to_show(periapses.size)
-            lines += ["| periapsis | winner along v_inf (km/s) | two_burn = direct at | three_burn = direct at |",
-                      "|---:|---|---:|---:|"]
+            lines += ["| periapsis | winner along v_inf (km/s) |" + "".join(f" {n} = direct at |" for n in challengers),
+                      "|---:|---|" + "---:|" * len(challengers)]
             for p in shown:
-                runs = _win_runs(best[b, :, t, p], v_inf, names)
+                runs = _win_runs(best[:, t, p], v_inf, names)
                 text = "; ".join(f"{label} {start:g}-{stop:g}" for label, start, stop in runs)
-                lines.append(
-                    f"| {_km(periapses[p])} | {text} | {_speed(dataset['crossover_v_inf'].values[b, t, p])} | "
-                    f"{_speed(dataset['three_burn_crossover_v_inf'].values[b, t, p])} |"
-                )
+                lines.append(f"| {km(periapses[p])} | {text} |"
+                             + "".join(f" {speed(crossing[n][t, p])} |" for n in challengers))
             if len(shown) < periapses.size:
                 lines.append(f"\n(showing {len(shown)} of {periapses.size} periapsis altitudes; all are in wins.csv)")
             lines.append("")
             if "finite_delta_v" in dataset:
-                lines += _finite_section(dataset, tables, b, t)
+                lines += _finite_section(cube, tables, t)
             if "plane_change" in tables:
                 lines += _plane_change_section(tables["plane_change"], body, target, names)
-        lines += _status_lines(dataset, b, names) + [""]
+        lines += _status_lines(cube, names) + [""]
     lines += [
         "## How to read this",
         "",
