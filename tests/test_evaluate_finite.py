@@ -105,6 +105,7 @@ def test_weak_engine_is_flagged_not_reported(finite_cube):
     assert (carried[impulsive != 0] == impulsive[impulsive != 0]).all()
 
 
+@pytest.mark.slow  # about 6 s: a finite-burn run through the command line
 def test_cli_run_with_thrust_axis_writes_cf_cube_and_gravity_loss_section(config_file, tmp_path):
     out = tmp_path / "out"
     assert main(["run", str(config_file(FINITE_CONFIG)), "--out", str(out), "-q", "--workers", "1"]) == 0

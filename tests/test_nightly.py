@@ -164,6 +164,7 @@ def test_resumed_chunks_give_the_same_arrays(tmp_path):
     shutil.rmtree(checkpoint)
 
 
+@pytest.mark.slow  # about 9 s each: three full runs and three kills
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_kill_9_then_rerun_gives_the_uninterrupted_cube(tmp_path, seed):
     # Killed once a seeded random number of its finite-burn chunks are saved (so always mid-run),

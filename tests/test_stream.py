@@ -70,6 +70,7 @@ def _streamed_peak(speeds: int, folder) -> tuple[int, int]:
     return peak, estimate_bytes(config)
 
 
+@pytest.mark.slow  # about 12 s: two streamed grids of 0.6 and 2.4 million points under tracemalloc
 def test_stream_memory_does_not_grow_with_the_grid(tmp_path):
     # 0.6 and 2.4 million points (100 and 400 MB of per-point arrays held whole): the streamed
     # run's peak is a few 8,192-point chunks plus the per-body plans (the apoapsis scan over

@@ -137,3 +137,26 @@ def test_a_fourth_strategy_in_the_finite_and_plane_change_sections():
         unregister("toy")
     assert "three_burn turns at apoapsis, toy turns with the apoapsis burn):" in text
     assert "| plane change | points won: direct / two_burn / three_burn / toy | median cost of the turn |" in text
+
+
+def test_a_registered_section_follows_each_target_in_the_summary(small_cube):
+    # The section registry is the extension point: one entry, no other file touched.
+    from sweep.report.summary import SECTIONS, Section
+
+    _, dataset = small_cube
+
+    def render(cube, tables, t):
+        best = cube["delta_v"].isel(target_altitude=t).min().item()
+        return [f"Toy section: least delta-v anywhere here {best:.1f} m/s.", ""]
+
+    SECTIONS.append(Section("toy", lambda cube, tables: True, render))
+    try:
+        text = render_summary(dataset)
+    finally:
+        SECTIONS.pop()
+    lines = [line for line in text.splitlines() if line.startswith("Toy section:")]
+    # 3 bodies x 2 targets, each with the cube's own least delta-v (Enceladus has none feasible: nan)
+    assert len(lines) == 6
+    least = float(dataset["delta_v"].isel(body=0, target_altitude=0).min())
+    assert lines[0] == f"Toy section: least delta-v anywhere here {least:.1f} m/s."
+    assert "Toy section" not in render_summary(dataset)  # unregistered again

@@ -9,7 +9,9 @@ cube names besides the reference (direct).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 import pandas as pd
@@ -28,7 +30,7 @@ from sweep.report.selection import (
     strategy_labels,
 )
 
-__all__ = ["answers", "render_summary", "summary_tables", "write_summary"]
+__all__ = ["SECTIONS", "Section", "answers", "render_summary", "summary_tables", "write_summary"]
 
 _MAX_ROWS = 12  # periapsis rows shown per Markdown table; the CSV has them all
 _DAY = 86400.0  # s
@@ -344,6 +346,26 @@ def _plane_change_section(table: pd.DataFrame, body: str, target: float, names: 
     return lines + ["", "Cost of the turn: least delta-v with the plane change minus least delta-v without it.", ""]
 
 
+class Section(NamedTuple):
+    """A part of each target's section in summary.md, for the cubes it ``applies`` to."""
+
+    name: str
+    applies: Callable[[xr.Dataset, dict[str, pd.DataFrame]], bool]  # (whole cube, tables)
+    render: Callable[[xr.Dataset, dict[str, pd.DataFrame], int], list[str]]  # (one body's cube, tables, target index)
+
+
+def _plane_change_lines(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -> list[str]:
+    return _plane_change_section(tables["plane_change"], body_label(cube), float(cube["target_altitude"].values[t]),
+                                 strategy_labels(cube))
+
+
+# The registry of optional sections, in the order they follow each target's winner table.
+SECTIONS: list[Section] = [
+    Section("finite", lambda dataset, tables: "finite_delta_v" in dataset, _finite_section),
+    Section("plane_change", lambda dataset, tables: "plane_change" in tables, _plane_change_lines),
+]
+
+
 def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None = None,
                    figures: list[tuple[str, str, str]] | None = None) -> str:
     """
@@ -389,7 +411,7 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
         ]
         for _, name, title in [f for f in figures or [] if f[0] == body]:
             lines += [f"![{title}]({name})", ""]
-        for t, target in enumerate(dataset["target_altitude"].values):
+        for t in range(dataset.sizes["target_altitude"]):
             lines += [f"### {body.capitalize()}, {_orbit_name(cube, t)}", "",
                       sentences[body][t], ""]
             shown = _rows_to_show(periapses.size)
@@ -403,10 +425,9 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
             if len(shown) < periapses.size:
                 lines.append(f"\n(showing {len(shown)} of {periapses.size} periapsis altitudes; all are in wins.csv)")
             lines.append("")
-            if "finite_delta_v" in dataset:
-                lines += _finite_section(cube, tables, t)
-            if "plane_change" in tables:
-                lines += _plane_change_section(tables["plane_change"], body, target, names)
+            for section in SECTIONS:
+                if section.applies(dataset, tables):
+                    lines += section.render(cube, tables, t)
         lines += _status_lines(cube, names) + [""]
     lines += [
         "## How to read this",
