@@ -41,6 +41,7 @@ from sweep.engine.impulsive import (
 )
 from sweep.errors import SweepError
 from sweep.lock import output_lock
+from sweep.model.strategies import STRATEGIES
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.report.summary import answers, summary_tables, write_summary
 
@@ -304,12 +305,13 @@ def check_text(config: SweepConfig) -> str:
                                 ("periapsis_altitude", config.periapsis_altitude, "km")):
         lines.append(f"  {label}: {values.size} values, {values[0]:g} to {values[-1]:g} {unit}")
     lines.append(f"  grid shape (body, v_inf, target_altitude, periapsis_altitude): {shape}")
-    lines.append(f"  points: {points:,} (x 3 strategies)")
+    lines.append(f"  points: {points:,} (x {len(STRATEGIES)} strategies)")
     if config.thrust is not None:
         ratio = config.thrust / (config.arrival_mass * STANDARD_GRAVITY)
         lines.append(f"  thrust: {config.thrust.size} values, {config.thrust[0]:,.6g} to {config.thrust[-1]:,.6g} N "
                      f"(thrust-to-weight {ratio[0]:.3g} to {ratio[-1]:.3g}), {config.steering} steering")
-        lines.append(f"  finite-burn points: {points * config.thrust.size:,} (x 3 strategies, each burn integrated)")
+        lines.append(f"  finite-burn points: {points * config.thrust.size:,} (x {len(STRATEGIES)} strategies, each "
+                     "burn integrated)")
     lines.append(f"  cube size, uncompressed: about {size_text(estimate_bytes(config))}")
     lines.append(f"  memory for the run's results (streamed to the cube chunk by chunk), on all cores: about "
                  f"{size_text(estimate_memory(config))}")
