@@ -7,6 +7,7 @@ Errors name the file, the key path, the value and what would be valid.
 from __future__ import annotations
 
 import difflib
+import hashlib
 import json
 import math
 import re
@@ -19,14 +20,16 @@ from typing import Annotated, Any, Literal
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag, ValidationError, field_validator
 
-from sweep.catalog import Body, catalog, resolve_body
+from sweep.catalog import Body, catalog, catalog_text, resolve_body
 from sweep.errors import CatalogError, ConfigError
 from sweep.physics.conics import hohmann_excess_speeds, semi_major_axis_from_period
 from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.version import __version__
 
 __all__ = [
     "DEMO_CONFIG",
     "SweepConfig",
+    "fingerprint",
     "load_config",
     "parse_config",
 ]
@@ -537,3 +540,12 @@ def load_config(path: str | Path | None = None) -> SweepConfig:
     except UnicodeDecodeError as err:
         raise ConfigError(f"{path}: config file is not UTF-8 text ({err.reason} at byte {err.start})") from err
     return parse_config(text, str(path))
+
+
+def fingerprint(config: SweepConfig) -> dict[str, str]:
+    """What decides whether results are current: the config and catalog hashes and the engine version."""
+    return {
+        "source": f"capsweep {__version__}",
+        "config_sha256": hashlib.sha256(config.text.encode()).hexdigest(),
+        "catalog_sha256": hashlib.sha256(catalog_text().encode()).hexdigest(),
+    }

@@ -2,14 +2,12 @@
 
 from __future__ import annotations
 
-import hashlib
 from datetime import UTC, datetime
 
 import numpy as np
 import xarray as xr
 
-from sweep.catalog import catalog_text
-from sweep.config import SweepConfig
+from sweep.config import SweepConfig, fingerprint
 from sweep.model.statuses import STATUSES
 from sweep.model.strategies import NO_STRATEGY, REFERENCE, STRATEGIES, strategy_names
 from sweep.model.variables import Variable, cube_variables
@@ -84,15 +82,6 @@ def _coordinates(config: SweepConfig, burns: int) -> dict:
         coords["thrust_to_weight"] = ("thrust", config.thrust / (config.arrival_mass * STANDARD_GRAVITY), _attrs(
             "1", "initial thrust-to-weight ratio, thrust / (arrival mass x 9.80665 m s-2)"))
     return coords
-
-
-def fingerprint(config: SweepConfig) -> dict[str, str]:
-    """What decides whether a cube is up to date: config and catalog hashes and the engine version."""
-    return {
-        "source": f"capsweep {__version__}",
-        "config_sha256": hashlib.sha256(config.text.encode()).hexdigest(),
-        "catalog_sha256": hashlib.sha256(catalog_text().encode()).hexdigest(),
-    }
 
 
 def build_dataset(config: SweepConfig, arrays: dict[str, np.ndarray]) -> xr.Dataset:

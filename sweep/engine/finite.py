@@ -11,6 +11,7 @@ regula falsi on the finite-burn model itself.
 from __future__ import annotations
 
 import logging
+import math
 import os
 import shutil
 import socket
@@ -22,8 +23,8 @@ from pathlib import Path
 import numpy as np
 from joblib import Parallel, delayed
 
-from sweep.config import SweepConfig
-from sweep.engine.checkpoint import chunk_file, load_chunk, save_chunk
+from sweep.config import SweepConfig, fingerprint
+from sweep.engine.checkpoint import chunk_file, load_chunk, run_key, save_chunk
 from sweep.engine.grid import chunks
 from sweep.engine.layout import Arrays, layout
 from sweep.engine.processes import alive
@@ -47,6 +48,7 @@ FINITE_STAGES = ("finite", "finite_crossover")
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
 _ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
 _BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
+_SHM_HEADROOM = 16 << 20  # bytes of /dev/shm left to others (and to joblib's own memmaps) at the least
 _MIN_CHUNKS = 16  # finite-burn chunks per sweep at least, where the grid has that many arrival speeds
 
 
@@ -79,12 +81,18 @@ def _fly(strategy, gm, radius, soi, geometry: Geometry, speed, thrust, exhaust_s
     ), maneuver
 
 
-def _chunk_arrays(strategies, speeds: int, targets: int, periapses: int, thrusts: int) -> dict[str, np.ndarray]:
-    """One chunk's finite-stage arrays (a body axis of length 1), NaN or 0 until computed."""
+def _chunk_layout(strategies, speeds: int, targets: int, periapses: int, thrusts: int
+                  ) -> dict[str, tuple[np.dtype, tuple[int, ...]]]:
+    """Dtype and shape of one chunk's finite-stage arrays (a body axis of length 1)."""
     sizes = {"strategy": len(strategies), "burn": max(s.burns for s in strategies), "body": 1, "v_inf": speeds,
              "target_altitude": targets, "periapsis_altitude": periapses, "thrust": thrusts}
-    return {v.name: np.full(shape_of(v, sizes), 0 if v.flags else np.nan, dtype=v.dtype)
-            for v in cube_variables(strategies) if v.checkpointed}
+    return {v.name: (np.dtype(v.dtype), shape_of(v, sizes)) for v in cube_variables(strategies) if v.checkpointed}
+
+
+def _chunk_arrays(strategies, speeds: int, targets: int, periapses: int, thrusts: int) -> dict[str, np.ndarray]:
+    """One chunk's finite-stage arrays (a body axis of length 1), NaN or 0 until computed."""
+    return {name: np.full(shape, 0 if dtype.kind == "i" else np.nan, dtype=dtype)
+            for name, (dtype, shape) in _chunk_layout(strategies, speeds, targets, periapses, thrusts).items()}
 
 
 def _without_body(arrays: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
@@ -290,6 +298,27 @@ def _radical_inverse(index: int) -> float:
     return value
 
 
+def _bytes(shapes: dict[str, tuple[tuple[int, ...], np.dtype]]) -> int:
+    return sum(math.prod(shape) * np.dtype(dtype).itemsize for shape, dtype in shapes.values())
+
+
+def _maps_folder(needed: int, checkpoint: Path | None) -> str:
+    """
+    A new private folder for the workers' shared output maps: in memory (/dev/shm) where it has
+    room for ``needed`` bytes, else on disk beside the checkpoints (or in the temporary folder),
+    said in a log line. Containers often give /dev/shm 64 MB; a map past its end kills the
+    worker writing it (SIGBUS), so the room is checked first.
+    """
+    shared = _shared_folder()
+    if shared is not None and shutil.disk_usage(shared).free >= needed + _SHM_HEADROOM:
+        return tempfile.mkdtemp(prefix=f"capsweep-{os.getpid()}-", dir=shared)
+    fallback = checkpoint.parent if checkpoint is not None else Path(tempfile.gettempdir())
+    free = shutil.disk_usage(shared).free if shared is not None else 0
+    logger.info("finite-burn arrays (%.1f MiB) do not fit in %s (%.1f MiB free): mapping them from files in %s",
+                needed / 2**20, shared or "a memory-backed folder", free / 2**20, fallback)
+    return tempfile.mkdtemp(prefix=f".capsweep-{os.getpid()}-maps-", dir=fallback)
+
+
 def _shared_folder() -> str | None:
     """A memory-backed folder for the workers' shared output, where the system has one."""
     return "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
@@ -341,6 +370,12 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
 
     if scheduler is not None:
         return _evaluate_on_cluster(config, bodies, shapes, work, arguments, scheduler, progress)
+    key = run_key(fingerprint(config), [s.name for s in strategies])
+    _, _, ntarget, nperiapsis, nthrust = config.finite_shape
+
+    def expected(i: int) -> dict[str, tuple[np.dtype, tuple[int, ...]]]:
+        return _chunk_layout(strategies, work[i].v_inf_stop - work[i].v_inf_start, ntarget, nperiapsis, nthrust)
+
     done = set()
     if checkpoint is not None:
         checkpoint.mkdir(parents=True, exist_ok=True)
@@ -351,7 +386,7 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     processes = max(1, min(workers, len(todo)))
     logger.info("finite burns: %d points in %d chunks on %d processes", points, len(work), processes)
     _remove_stale_shared(_shared_folder())
-    folder = tempfile.mkdtemp(prefix=f"capsweep-{os.getpid()}-", dir=_shared_folder()) if processes > 1 else None
+    folder = _maps_folder(_bytes(shapes), checkpoint) if processes > 1 else None
     runner = Parallel(n_jobs=processes, backend="loky" if processes > 1 else "sequential", return_as="generator")
     # Saved chunks are read on a thread while the workers compute the rest (reading back half of
     # a large run takes seconds); they touch disjoint parts of the output.
@@ -363,17 +398,30 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
             os.path.join(folder, f"{name}.npy"), mode="w+", dtype=dtype, shape=shape)
             for name, (shape, dtype) in shapes.items()}
 
-        def load_done() -> None:
+        def load_done() -> list[int]:
+            """Place every saved chunk that passes verification; return the others' indices."""
+            rejected = []
             for i in sorted(done):
-                _place(out, work[i], load_chunk(checkpoint, i))
+                arrays = load_chunk(checkpoint, i, key, expected(i))
+                if arrays is None:
+                    rejected.append(i)
+                else:
+                    _place(out, work[i], arrays)
+            return rejected
+
+        def compute(indices: list[int], label: str) -> None:
+            tasks = (delayed(_run_and_place)(out, work[i], os.getpid(), *arguments(work[i])) for i in indices)
+            for i, _ in zip(indices, track(runner(tasks), len(indices), points * len(indices) // max(len(work), 1),
+                                           label, progress), strict=True):
+                if checkpoint is not None:
+                    save_chunk(checkpoint, i, _take(out, work[i]), key)
 
         loading = loader.submit(load_done)
-        tasks = (delayed(_run_and_place)(out, work[i], os.getpid(), *arguments(work[i])) for i in todo)
-        for i, _ in zip(todo, track(runner(tasks), len(todo), points * len(todo) // max(len(work), 1),
-                                    "finite burns", progress), strict=True):
-            if checkpoint is not None:
-                save_chunk(checkpoint, i, _take(out, work[i]))
-        loading.result()  # raises what the loader met, e.g. an unreadable checkpoint
+        compute(todo, "finite burns")
+        rejected = loading.result()  # raises only what is not a checkpoint's fault
+        if rejected:
+            logger.warning("recomputing %d finite-burn chunks whose checkpoints failed verification", len(rejected))
+            compute(rejected, "finite burns, recomputed")
     finally:
         loader.shutdown(wait=True, cancel_futures=True)  # never remove the maps under a running loader
         if folder is not None:
