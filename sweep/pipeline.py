@@ -10,17 +10,21 @@ other commands. Nothing here prints: the text is returned, and progress is logge
 
 from __future__ import annotations
 
+import glob
 import hashlib
 import logging
 import math
 import os
+import re
+import resource
 import shutil
+import stat
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TypeVar
+from typing import NamedTuple, TypeVar
 
 import xarray as xr
 
@@ -39,6 +43,7 @@ from sweep.engine.impulsive import (
     prepare,
     sweep_chunks,
 )
+from sweep.engine.layout import layout
 from sweep.errors import SweepError
 from sweep.lock import output_lock
 from sweep.model.strategies import STRATEGIES
@@ -70,6 +75,11 @@ CUBE_VARIABLES = ("best_strategy", "saving_over_direct", "status", "crossover_v_
 """Variables every capsweep cube has; a netCDF file lacking one is not a capsweep cube."""
 
 LOG_NAME = "capsweep.log"
+_CHECKPOINT_NAME = re.compile(r"[0-9a-f]{16}\.chunks")  # after ".<config name>.": the key and the suffix
+# Virtual memory a run maps besides its results: the interpreter, numpy, xarray, netCDF/HDF5,
+# matplotlib, thread stacks and worker pools. Measured here as VmPeak 650 MB (impulsive) to 800
+# MB (finite, two workers) for small grids; under a lower ``ulimit -v`` imports failed or spun.
+BASELINE_ADDRESS_SPACE = 1 << 30
 _CAUTION = ("Preliminary patched-conic estimates (impulsive burns; simple finite burns where a thrust axis is given): "
            "verify with higher-fidelity propagation.")
 
@@ -219,6 +229,7 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
     # version, so loading them gives the same cube, and a forced run that is killed resumes.
     with output_lock(folder), _log_file(folder / LOG_NAME):
         logger.info("run of %s into %s", config.path, folder)
+        remove_stale_checkpoints(config, folder)
         started = time.perf_counter()
         # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
         cube = _writing(folder, lambda: run_to_file(
@@ -312,9 +323,14 @@ def check_text(config: SweepConfig) -> str:
                      f"(thrust-to-weight {ratio[0]:.3g} to {ratio[-1]:.3g}), {config.steering} steering")
         lines.append(f"  finite-burn points: {points * config.thrust.size:,} (x {len(STRATEGIES)} strategies, each "
                      "burn integrated)")
-    lines.append(f"  cube size, uncompressed: about {size_text(estimate_bytes(config))}")
+    needs = estimate_needs(config)
+    lines.append(f"  cube size, uncompressed: about {size_text(needs.cube)}")
+    if config.thrust is not None:
+        lines.append(f"  finite-burn checkpoints on disk while running: about {size_text(needs.checkpoints)}; arrays "
+                     f"shared by the workers: {size_text(needs.maps)} (in /dev/shm, or on disk where it lacks room)")
     lines.append(f"  memory for the run's results (streamed to the cube chunk by chunk), on all cores: about "
-                 f"{size_text(estimate_memory(config))}")
+                 f"{size_text(needs.evaluation)}")
+    lines.append(f"  memory for the summary and figures (one body at a time): about {size_text(needs.report)}")
     return "\n".join(lines)
 
 
@@ -379,18 +395,104 @@ def up_to_date(cube: Path, config: SweepConfig) -> bool:
         return False
 
 
+class Needs(NamedTuple):
+    """What a run needs, bytes: on disk, and in memory at the peak of each phase."""
+
+    cube: int  # the cube, uncompressed
+    checkpoints: int  # finished finite-burn chunks, on disk until the cube lands
+    maps: int  # the finite-burn arrays the workers share: in /dev/shm, or on disk where it lacks room
+    evaluation: int  # results held while evaluating and writing the cube (the shared maps included)
+    report: int  # what the summary and figures read at once: one body's per-point arrays, and a copy
+
+    @property
+    def memory(self) -> int:
+        return max(self.evaluation, self.report)
+
+
+def estimate_needs(config: SweepConfig, workers: int | None = None) -> Needs:
+    """Disk and memory a run of ``config`` needs, phase by phase (see :class:`Needs`)."""
+    per_point = _array_bytes(layout(config, ("impulsive", "plane", "finite")))
+    finite = _array_bytes(layout(config, ("finite", "finite_crossover")))
+    return Needs(cube=estimate_bytes(config), checkpoints=_array_bytes(layout(config, ("finite",))), maps=finite,
+                 evaluation=estimate_memory(config, workers), report=2 * per_point // max(len(config.bodies), 1))
+
+
+def _array_bytes(shapes) -> int:
+    return sum(math.prod(shape) * dtype.itemsize for shape, dtype in shapes.values())
+
+
+def _saved_bytes(folder: Path) -> int:
+    """Bytes of the regular files directly in ``folder`` (0 if it is not a folder of ours)."""
+    try:
+        return sum(entry.stat(follow_symlinks=False).st_size for entry in os.scandir(folder)
+                   if entry.is_file(follow_symlinks=False))
+    except OSError:
+        return 0
+
+
+def stale_checkpoints(config: SweepConfig, folder: Path) -> list[Path]:
+    """
+    Checkpoint folders of this output left by killed runs of other inputs or versions: named as
+    ours for this config name, real folders (not links) owned by this user, not this run's.
+    """
+    current = checkpoint_folder(config, folder)
+    found = []
+    for path in folder.glob(f".{glob.escape(config.name)}.*.chunks"):
+        try:
+            status = path.lstat()
+        except OSError:
+            continue
+        if path != current and stat.S_ISDIR(status.st_mode) and status.st_uid == os.geteuid() \
+                and _CHECKPOINT_NAME.fullmatch(path.name[len(config.name) + 2:]):
+            found.append(path)
+    return found
+
+
+def remove_stale_checkpoints(config: SweepConfig, folder: Path) -> None:
+    """Remove :func:`stale_checkpoints` (call with the folder's lock held: a running run's are never stale)."""
+    for path in stale_checkpoints(config, folder):
+        logger.info("removing %s (%s), checkpoints of a killed run of other inputs or version", path,
+                    size_text(_saved_bytes(path)))
+        shutil.rmtree(path, ignore_errors=True)
+
+
 def check_room(config: SweepConfig, folder: Path, workers: int | None) -> None:
-    """Refuse a grid whose cube would not fit on the disk, or whose results would not fit in memory."""
-    cube, memory = estimate_bytes(config), estimate_memory(config, workers)
+    """
+    Refuse a grid whose outputs would not fit on the disk (cube, checkpoints, and the finite-burn
+    maps where /dev/shm lacks room for them), or whose results would not fit in memory at the
+    peak of any phase, or under the address-space limit.
+    """
+    needs = estimate_needs(config, workers)
     existing = next(p for p in (folder, *folder.absolute().parents) if p.exists())
-    free_disk, free_memory = shutil.disk_usage(existing).free, _available_memory()
     hint = "shrink the grid, or pass --force to run anyway"
-    if cube > free_disk:
-        raise SweepError(f"{config.path}: grid: the cube would take about {size_text(cube)} uncompressed, but "
-                         f"{existing} has {size_text(free_disk)} free; {hint}")
+    saved = _saved_bytes(checkpoint_folder(config, folder))  # this run's chunks already on disk: reused
+    stale = sum(_saved_bytes(p) for p in stale_checkpoints(config, folder)) if folder.is_dir() else 0
+    shm = "/dev/shm" if os.path.isdir("/dev/shm") else None
+    maps_on_disk = config.thrust is not None and (shm is None or shutil.disk_usage(shm).free < needs.maps)
+    disk = needs.cube + max(needs.checkpoints - saved, 0) + (needs.maps if maps_on_disk else 0)
+    free_disk = shutil.disk_usage(existing).free + stale
+    if disk > free_disk:
+        parts = [f"the cube {size_text(needs.cube)} uncompressed"]
+        if config.thrust is not None:
+            parts.append(f"finite-burn checkpoints {size_text(max(needs.checkpoints - saved, 0))}"
+                         + (f" (besides {size_text(saved)} already saved, which this run reuses)" if saved else ""))
+        if maps_on_disk:
+            parts.append(f"finite-burn maps {size_text(needs.maps)} (/dev/shm lacks room)")
+        freed = f", counting {size_text(stale)} of stale checkpoints a run removes" if stale else ""
+        what = (f"the cube would take about {size_text(disk)} uncompressed" if disk == needs.cube
+                else f"the outputs would take about {size_text(disk)} ({', '.join(parts)})")
+        raise SweepError(f"{config.path}: grid: {what}, but {existing} has {size_text(free_disk)} free{freed}; {hint}")
+    memory, free_memory = needs.memory, _available_memory()
     if free_memory is not None and memory > free_memory:
+        phase = "evaluating" if needs.evaluation >= needs.report else "writing the summary and figures"
         raise SweepError(f"{config.path}: grid: the run would hold about {size_text(memory)} of results in memory, "
-                         f"but {size_text(free_memory)} is available; {hint}")
+                         f"but {size_text(free_memory)} is available (the peak comes while {phase}); {hint}")
+    limit = _address_space_limit()
+    if limit is not None and limit < BASELINE_ADDRESS_SPACE + memory:
+        need = BASELINE_ADDRESS_SPACE + memory
+        raise SweepError(f"{config.path}: the address-space limit (ulimit -v) is {size_text(limit)}, below the "
+                         f"{size_text(need)} this run needs ({size_text(BASELINE_ADDRESS_SPACE)} for Python and its "
+                         f"libraries plus {size_text(memory)} of results); raise the limit, {hint}")
 
 
 def check_writable(folder: Path) -> None:
@@ -412,6 +514,12 @@ def size_text(count: float) -> str:
             return f"{count:.1f} {unit}" if unit != "B" else f"{int(count)} B"
         count /= 1024
     return ""
+
+
+def _address_space_limit() -> int | None:
+    """The soft limit on this process's virtual memory (``ulimit -v``), bytes; None where unlimited."""
+    soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+    return None if soft == resource.RLIM_INFINITY else soft
 
 
 def _available_memory() -> int | None:

@@ -141,3 +141,23 @@ def test_load_chunk_accepts_its_own_run_only(saved):
     assert load_chunk(folder, 0, "another key") is None
     with zipfile.ZipFile(chunk_file(folder, 0)) as archive:  # the record travels inside the file
         assert "__checkpoint__.npy" in archive.namelist()
+
+
+def test_a_small_dev_shm_falls_back_to_file_maps_beside_the_checkpoints(saved, tmp_path, caplog, monkeypatch):
+    # Containers often give /dev/shm 64 MB; mapping more than it holds kills the workers with SIGBUS.
+    import sweep.engine.finite as finite
+
+    config, plans, fresh, _ = saved
+    real = finite.shutil.disk_usage
+    monkeypatch.setattr(finite, "_shared_folder", lambda: str(tmp_path / "shm"))
+    (tmp_path / "shm").mkdir()
+    monkeypatch.setattr(finite.shutil, "disk_usage", lambda p: real(p)._replace(free=1 << 20)
+                        if str(p).endswith("shm") else real(p))
+    checkpoint = tmp_path / "out" / ".chunks"
+    with caplog.at_level(logging.INFO, logger="sweep"):
+        result = evaluate_finite(config, plans, 2, points_per_chunk=64, checkpoint=checkpoint)
+    assert_same_arrays(fresh, result)
+    lines = [r.getMessage() for r in caplog.records if "do not fit" in r.getMessage()]
+    assert len(lines) == 1 and str(tmp_path / "out") in lines[0], lines
+    assert not list((tmp_path / "out").glob(".capsweep-*"))  # the maps are gone once the arrays are read
+    assert not list((tmp_path / "shm").iterdir())  # nothing was put in the small memory folder
