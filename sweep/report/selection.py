@@ -10,13 +10,17 @@ only that body's values when they are asked for.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+
 import numpy as np
 import xarray as xr
 
 from sweep.model.strategies import REFERENCE
 
-__all__ = ["GRID", "array", "body_label", "challenger_names", "feasible_periapses", "labelled",
-           "lowest_periapsis_below", "one_body", "strategy_labels"]
+__all__ = ["BLOCK_BYTES", "GRID", "any_along", "array", "blocks", "body_label", "challenger_names", "count_values",
+           "feasible_periapses", "labelled", "lowest_periapsis_below", "one_body", "strategy_labels"]
+
+BLOCK_BYTES = 64 << 20  # the most one blockwise read holds at once
 
 GRID = ("v_inf", "target_altitude", "periapsis_altitude")  # the grid's dimensions, in the order the report reads
 
@@ -53,19 +57,51 @@ def array(cube: xr.Dataset, name: str, *dims: str) -> np.ndarray:
     return cube[name].transpose(*dims).values
 
 
+def blocks(variable: xr.DataArray, dim: str = "v_inf") -> Iterator[xr.DataArray]:
+    """
+    ``variable`` read in slices along ``dim`` of about :data:`BLOCK_BYTES` each: a reduction over
+    a large cube holds one slice at a time, not the whole variable.
+    """
+    size = variable.sizes.get(dim, 1)
+    per_slice = variable.dtype.itemsize * variable.size // max(size, 1)
+    step = max(1, BLOCK_BYTES // max(per_slice, 1))
+    if dim not in variable.dims:
+        yield variable.load()
+        return
+    for start in range(0, size, step):
+        yield variable.isel({dim: slice(start, start + step)}).load()
+
+
+def any_along(condition: xr.DataArray, keep: str) -> np.ndarray:
+    """Whether ``condition`` holds anywhere, for each value of dimension ``keep``; read block by block."""
+    found = np.zeros(condition.sizes[keep], dtype=bool)
+    for block in blocks(condition):
+        found |= block.any([d for d in block.dims if d != keep]).transpose(keep).values
+    return found
+
+
+def count_values(variable: xr.DataArray, size: int) -> np.ndarray:
+    """How often each integer 0 .. size - 1 occurs in ``variable`` (values outside ignored); read block by block."""
+    counts = np.zeros(size, dtype=np.int64)
+    for block in blocks(variable):
+        values = block.values.ravel()
+        counts += np.bincount(values[(values >= 0) & (values < size)].astype(np.int64), minlength=size)[:size]
+    return counts
+
+
 def feasible_periapses(cube: xr.Dataset, strategies: list[str], target: int | None = None) -> list[int]:
     """
     Indices along ``periapsis_altitude`` (ascending) where one of ``strategies`` is feasible at
     some arrival speed: at any target, or, with ``target`` (an index along ``target_altitude``),
     at that target and below its altitude. ``cube`` holds one body (:func:`one_body`).
     """
-    ok = cube["status"].sel(strategy=strategies) == 0
+    status = cube["status"].sel(strategy=strategies)
     if target is None:
-        ok = ok.any(("strategy", "v_inf", "target_altitude"))
+        ok = any_along(status == 0, "periapsis_altitude")
     else:
-        below = cube["periapsis_altitude"] < cube["target_altitude"].isel(target_altitude=target)
-        ok = ok.isel(target_altitude=target).any(("strategy", "v_inf")) & below
-    return [int(p) for p in np.flatnonzero(ok.values)]
+        below = (cube["periapsis_altitude"] < cube["target_altitude"].isel(target_altitude=target)).values
+        ok = any_along(status.isel(target_altitude=target) == 0, "periapsis_altitude") & below
+    return [int(p) for p in np.flatnonzero(ok)]
 
 
 def lowest_periapsis_below(cube: xr.Dataset, strategies: list[str], target: int) -> int | None:

@@ -19,7 +19,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
 from sweep.model.strategies import crossover_variable, lookup, strategy_colour
-from sweep.report.selection import challenger_names
+from sweep.report.selection import any_along, challenger_names, count_values
 
 __all__ = ["CAPTION", "CONTOUR_COLOUR", "DPI", "NONE_COLOUR", "V_INF_LABEL", "crossover_names", "crossover_speeds",
            "dark", "edges", "evenly", "figure_title", "fill_colour", "line_style", "log_axis", "message", "new_figure",
@@ -147,11 +147,10 @@ def message(ax: Axes, text: str) -> None:
 
 def nothing_feasible(cube: xr.Dataset) -> str | None:
     """For a body (one-body cube) where no strategy is feasible anywhere: the most common reason; else None."""
-    if (cube["best_strategy"].values >= 0).any():
+    if any_along(cube["best_strategy"] >= 0, "target_altitude").any():
         return None
-    codes, counts = np.unique(cube["status"].values, return_counts=True)
     meanings = cube["status"].attrs.get("flag_meanings", "").split()
-    code = int(codes[np.argmax(counts)])
+    code = int(np.argmax(count_values(cube["status"], max(len(meanings), 1))))
     reason = meanings[code] if code < len(meanings) else f"status {code}"
     return f"no strategy is feasible anywhere on this grid (mostly: {reason})"
 

@@ -41,14 +41,15 @@ def draw(cube: xr.Dataset) -> Figure:
     finite_crossing = common.crossover_names(cube, names, finite=True)
     labels = [f"periapsis {km(periapses[p])}\n{common.target_label(cube)}" for p in rows]
     axes = panel_grid(figure, len(rows) * columns, columns, labels)
-    impulsive = array(cube, "best_strategy", *GRID)
-    best = array(cube, "finite_best_strategy", *GRID, "thrust")
+    drawn = cube.isel(periapsis_altitude=rows)  # only the periapses drawn are read
+    impulsive = array(drawn, "best_strategy", *GRID)
+    best = array(drawn, "finite_best_strategy", *GRID, "thrust")
     for r, p in enumerate(rows):
         row = axes[r * columns:(r + 1) * columns]
-        geometry.draw(row[0], impulsive[:, :, p])
+        geometry.draw(row[0], impulsive[:, :, r])
         geometry.crossovers(row[0], common.crossover_speeds(cube, crossing, periapsis_altitude=p))
         for ax, f in zip(row[1:], levels, strict=True):
-            geometry.draw(ax, best[:, :, p, f])
+            geometry.draw(ax, best[:, :, r, f])
             geometry.crossovers(ax, common.crossover_speeds(cube, finite_crossing, finite=True, periapsis_altitude=p,
                                                      thrust=f))
         if r == 0:

@@ -20,7 +20,7 @@ from sweep.report.figures.common import (
     target_colours,
 )
 from sweep.report.format import km, number
-from sweep.report.selection import GRID, array, body_label
+from sweep.report.selection import GRID, any_along, array, body_label
 
 __all__ = ["TITLE", "draw"]
 
@@ -32,9 +32,9 @@ def draw(cube: xr.Dataset) -> Figure:
     """The saving curves of the one body in ``cube`` (see :func:`sweep.report.selection.one_body`)."""
     v_inf, targets = cube["v_inf"].values, cube["target_altitude"].values
     periapses = cube["periapsis_altitude"].values
-    saving = array(cube, "saving_over_direct", *GRID)
-    paying = [int(p) for p in np.flatnonzero((np.nan_to_num(saving) > 0).any(axis=(0, 1)))]
+    paying = [int(p) for p in np.flatnonzero(any_along(cube["saving_over_direct"] > 0, "periapsis_altitude"))]
     shown = evenly(paying, _MAX_SAVING_PANELS)
+    saving = array(cube.isel(periapsis_altitude=shown), "saving_over_direct", *GRID)  # only the periapses drawn
     nothing = nothing_feasible(cube)
     if nothing:
         which = nothing
@@ -50,7 +50,7 @@ def draw(cube: xr.Dataset) -> Figure:
                         f"saving of the cheapest strategy (the winner map shows which); {which}; {CAPTION}")
     axes = figure.subplots(1, count, sharex=True, sharey=True, squeeze=False)[0]
     colours = target_colours(targets.size)
-    for ax, p in zip(axes, shown or [None], strict=True):
+    for i, (ax, p) in enumerate(zip(axes, shown or [None], strict=True)):
         ax.axhline(0.0, color="#909090", linewidth=0.8, zorder=1)
         ax.set_xlabel(V_INF_LABEL, fontsize=9)
         ax.tick_params(labelsize=8)
@@ -61,11 +61,11 @@ def draw(cube: xr.Dataset) -> Figure:
             continue
         ax.set_title(f"periapsis {km(periapses[p])}", fontsize=9.5)
         for t in range(targets.size):
-            ax.plot(v_inf, saving[:, t, p], color=colours[t], linewidth=1.8, zorder=3)
+            ax.plot(v_inf, saving[:, t, i], color=colours[t], linewidth=1.8, zorder=3)
     axes[0].set_ylabel("saving over direct, m/s", fontsize=9)
     axes[0].yaxis.set_major_formatter(FuncFormatter(number))
     handles = [Line2D([], [], color=colours[t], linewidth=1.8, label=f"target orbit {km(target)}")
-               for t, target in enumerate(targets) if shown and np.isfinite(saving[:, t, shown]).any()]
+               for t, target in enumerate(targets) if shown and np.isfinite(saving[:, t]).any()]
     if handles:
         figure.legend(handles=handles, loc="outside lower center", ncol=min(len(handles), 5), fontsize=8,
                       frameon=False)

@@ -22,8 +22,6 @@ def draw(cube: xr.Dataset) -> Figure:
     """The winner map of the one body in ``cube`` (see :func:`sweep.report.selection.one_body`)."""
     names = strategy_labels(cube)
     periapses = cube["periapsis_altitude"].values
-    best = array(cube, "best_strategy", *GRID)
-    saving = array(cube, "saving_over_direct", *GRID)
     candidates = feasible_periapses(cube, challenger_names(names))
     pool = candidates or list(range(periapses.size))
     shown = common.evenly(pool, _MAX_PERIAPSIS_PANELS)
@@ -39,7 +37,10 @@ def draw(cube: xr.Dataset) -> Figure:
     else:
         which = (f"{len(shown)} of {periapses.size} periapsis altitudes, evenly spaced over the {len(pool)} "
                  "where a low-periapsis strategy is feasible")
-    finite_saving = saving[..., shown][np.isfinite(saving[..., shown])]
+    panels = cube.isel(periapsis_altitude=shown)  # only the periapses drawn are read
+    best = array(panels, "best_strategy", *GRID)
+    saving = array(panels, "saving_over_direct", *GRID)
+    finite_saving = saving[np.isfinite(saving)]
     levels = common.nice_levels(float(finite_saving.max()) if finite_saving.size else 0.0)
     targets = cube["target_altitude"].values
     if levels.size and 2 <= targets.size < 10:
@@ -51,9 +52,10 @@ def draw(cube: xr.Dataset) -> Figure:
     geometry = MapAxes(cube["v_inf"].values, targets, names)
     crossing = common.crossover_names(cube, names)
     contoured = False
-    for ax, p in zip(panel_grid(figure, len(shown), columns, common.target_label(cube)), shown, strict=True):
-        geometry.draw(ax, best[:, :, p])
-        contoured |= geometry.contours(ax, saving[:, :, p], levels)
+    for i, (ax, p) in enumerate(zip(panel_grid(figure, len(shown), columns, common.target_label(cube)), shown,
+                                    strict=True)):
+        geometry.draw(ax, best[:, :, i])
+        contoured |= geometry.contours(ax, saving[:, :, i], levels)
         geometry.crossovers(ax, common.crossover_speeds(cube, crossing, periapsis_altitude=p))
         ax.set_title(f"periapsis {km(periapses[p])}", fontsize=9.5)
     geometry.legend(figure, crossing, contours=contoured)
