@@ -21,6 +21,7 @@ from contextlib import contextmanager
 from pathlib import Path
 
 from sweep.errors import SweepError
+from sweep.safefs import make_folder
 
 __all__ = ["LOCK_NAME", "LockError", "output_lock"]
 
@@ -60,7 +61,7 @@ def output_lock(folder: str | Path) -> Iterator[Path]:
     folder = Path(folder)
     path = folder / LOCK_NAME
     try:
-        folder.mkdir(parents=True, exist_ok=True)
+        make_folder(folder)
     except OSError as err:
         raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
     note = {"pid": os.getpid(), "host": socket.gethostname(), "started": time.strftime("%Y-%m-%dT%H:%M:%S%z")}

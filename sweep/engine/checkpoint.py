@@ -7,6 +7,8 @@ from pathlib import Path
 
 import numpy as np
 
+from sweep.atomic import replacing
+
 __all__ = ["chunk_file", "load_chunk", "save_chunk"]
 
 
@@ -17,14 +19,11 @@ def chunk_file(folder: Path, index: int) -> Path:
 
 def save_chunk(folder: Path, index: int, result: dict[str, np.ndarray]) -> None:
     """Write one finished chunk's arrays (the variable registry's checkpointed ones) atomically:
-    temporary name, fsync, rename."""
-    final = chunk_file(folder, index)
-    temporary = final.with_suffix(".part")
-    with open(temporary, "wb") as stream:
+    a new temporary file (no link followed), fsync, rename."""
+    with replacing(chunk_file(folder, index)) as temporary, open(temporary, "wb") as stream:
         np.savez(stream, **result)
         stream.flush()
         os.fsync(stream.fileno())
-    os.replace(temporary, final)
 
 
 def load_chunk(folder: Path, index: int) -> dict[str, np.ndarray]:
