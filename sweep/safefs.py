@@ -65,10 +65,11 @@ def check_folder(folder: str | Path) -> None:
     me = os.geteuid()
     try:
         link, info = os.lstat(folder), os.stat(folder)
-    except FileNotFoundError:
-        return
+    except (FileNotFoundError, NotADirectoryError):
+        return  # making it will fail or make it ours
     except OSError as err:
-        raise SweepError(f"{folder}: cannot inspect the output folder: {err.strerror or err}") from err
+        raise SweepError(f"{folder}: output folder cannot be written: {err.strerror or err} (choose another with --out)"
+                         ) from err
     mode = stat.S_IMODE(info.st_mode)
     hint = "choose another with --out"
     if stat.S_ISLNK(link.st_mode) and link.st_uid not in (me, 0):

@@ -25,6 +25,7 @@ from sweep.cli import main
 from sweep.engine.checkpoint import chunk_file, load_chunk, save_chunk
 from sweep.engine.finite import _remove_stale_shared
 from sweep.errors import SweepError
+from sweep.lock import LOCK_NAME
 from sweep.pipeline import LOG_NAME, checkpoint_folder
 from sweep.safefs import check_folder, open_log
 from tests.conftest import SMALL_CONFIG
@@ -122,6 +123,19 @@ def test_a_planted_log_is_refused_with_one_line(tmp_path, config_file, victim, c
                         lines[0]), lines[0]
     assert victim.read_bytes() == VICTIM_BYTES
     assert sorted(p.name for p in out.iterdir()) == [LOG_NAME]  # nothing else written, not even the cube
+
+
+@pytest.mark.parametrize("plant", ["symlink", "hardlink"])
+def test_a_planted_lock_file_is_refused_with_one_line(tmp_path, config_file, victim, capsys, plant):
+    out = _folder(tmp_path, 0o755)
+    lock = out / LOCK_NAME
+    lock.symlink_to(victim) if plant == "symlink" else os.link(victim, lock)
+    code, lines = _run(capsys, config_file(), out)
+    assert code == 2 and len(lines) == 1, lines
+    reason = "a symbolic link, not followed" if plant == "symlink" else r"not a regular file of yours with one link"
+    assert re.fullmatch(rf"capsweep: error: {lock}: cannot take the output folder's lock file: {reason}.*", lines[0])
+    assert victim.read_bytes() == VICTIM_BYTES  # the note was not written into it
+    assert sorted(p.name for p in out.iterdir()) == [LOCK_NAME]
 
 
 @needs_root
