@@ -15,12 +15,14 @@ import json
 import logging
 import os
 import socket
+import stat
 import time
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
 from sweep.errors import SweepError
+from sweep.safefs import make_folder
 
 __all__ = ["LOCK_NAME", "LockError", "output_lock"]
 
@@ -60,14 +62,19 @@ def output_lock(folder: str | Path) -> Iterator[Path]:
     folder = Path(folder)
     path = folder / LOCK_NAME
     try:
-        folder.mkdir(parents=True, exist_ok=True)
+        make_folder(folder)
     except OSError as err:
         raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
     note = {"pid": os.getpid(), "host": socket.gethostname(), "started": time.strftime("%Y-%m-%dT%H:%M:%S%z")}
     found = _read_note(path)  # what an earlier holder left, if anything
     held: list[os.stat_result] = []
+    refused: list[os.stat_result] = []
 
     def write_note(descriptor: int) -> None:
+        info = os.fstat(descriptor)
+        if not stat.S_ISREG(info.st_mode) or info.st_uid != os.geteuid() or info.st_nlink != 1:
+            refused.append(info)  # another user's file, or a hard link to some file: truncating it would destroy it
+            return
         os.ftruncate(descriptor, 0)
         os.pwrite(descriptor, json.dumps(note).encode(), 0)
         held.append(os.fstat(descriptor))
@@ -91,6 +98,10 @@ def output_lock(folder: str | Path) -> Iterator[Path]:
         except OSError as err:
             reason = "a symbolic link, not followed; remove it" if err.errno == errno.ELOOP else err.strerror or err
             raise SweepError(f"{path}: cannot take the output folder's lock file: {reason}") from err
+    if refused:
+        lock.release()
+        raise SweepError(f"{path}: cannot take the output folder's lock file: not a regular file of yours with one "
+                         f"link (owner uid {refused[0].st_uid}, {refused[0].st_nlink} links); remove it")
     if found:
         logger.info("lock file %s was left by pid %s on %s since %s; its lock was free (that run has ended)",
                     path, found.get("pid", "?"), found.get("host", "?"), found.get("started", "?"))

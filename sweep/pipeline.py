@@ -44,11 +44,13 @@ from sweep.engine.impulsive import (
     sweep_chunks,
 )
 from sweep.engine.layout import layout
+from sweep.engine.processes import alive
 from sweep.errors import SweepError
 from sweep.lock import output_lock
 from sweep.model.strategies import STRATEGIES
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.report.summary import answers, summary_tables, write_summary
+from sweep.safefs import check_folder, make_folder, open_log, remove_stale_parts, temporary_beside
 
 __all__ = [
     "DEFAULT_OUT",
@@ -218,6 +220,7 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
     cube_path = folder / f"{config.name}.nc"
     checkpoint = checkpoint_folder(config, folder)
     points = math.prod(config.shape)
+    check_folder(folder)  # before anything is read or removed: a folder others could tamper with is refused
     if not force and up_to_date(cube_path, config):
         shutil.rmtree(checkpoint, ignore_errors=True)  # left by a run killed after its cube landed
         logger.info("up to date: %s", cube_path)
@@ -230,6 +233,7 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
     with output_lock(folder), _log_file(folder / LOG_NAME):
         logger.info("run of %s into %s", config.path, folder)
         remove_stale_checkpoints(config, folder)
+        _remove_leftovers(folder, checkpoint)
         started = time.perf_counter()
         # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
         cube = _writing(folder, lambda: run_to_file(
@@ -496,11 +500,12 @@ def check_room(config: SweepConfig, folder: Path, workers: int | None) -> None:
 
 
 def check_writable(folder: Path) -> None:
-    """Fail before any work if the output folder cannot be made or written to."""
+    """Fail before any work if the output folder cannot be made or written to, or is one others could tamper
+    with (:func:`sweep.safefs.check_folder`)."""
     try:
-        folder.mkdir(parents=True, exist_ok=True)
-        probe = folder / f".capsweep-write-test-{os.getpid()}"
-        probe.write_bytes(b"")
+        make_folder(folder)
+        descriptor, probe = temporary_beside(folder / "capsweep-write-test")  # a new file, no link followed
+        os.close(descriptor)
         probe.unlink()
     except OSError as err:
         raise SweepError(f"{err.filename or folder}: output folder cannot be written: "
@@ -536,8 +541,9 @@ def _available_memory() -> int | None:
 
 @contextmanager
 def _log_file(path: Path) -> Iterator[None]:
-    """Copy the run's log lines (INFO and up) to a file beside the outputs."""
-    handler = logging.FileHandler(path, encoding="utf-8")
+    """Copy the run's log lines (INFO and up) to a file beside the outputs (appended to, never through a link)."""
+    stream = open_log(path)
+    handler = logging.StreamHandler(stream)
     handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
     handler.setLevel(logging.INFO)
     library = logging.getLogger("sweep")
@@ -550,6 +556,19 @@ def _log_file(path: Path) -> Iterator[None]:
         library.removeHandler(handler)
         library.setLevel(previous)
         handler.close()
+        stream.close()
+
+
+def _remove_leftovers(folder: Path, checkpoint: Path) -> None:
+    """Under the folder's lock: remove the temporaries that killed runs left in it and in the checkpoint folder."""
+    removed = []
+    for place in (folder, checkpoint):
+        if os.path.lexists(place):
+            check_folder(place)  # a checkpoint folder another user made or swapped is refused, not read
+            removed += remove_stale_parts(place, alive)
+    if removed:
+        logger.info("removed %d partial file(s) left by killed runs: %s", len(removed),
+                    ", ".join(str(path) for path in removed))
 
 
 def _write_report(dataset: xr.Dataset, folder: Path, workers: int | None, figures: bool = True) -> ReportFiles:

@@ -11,7 +11,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "sweep"
 
 # Lowest first; a module may import its own layer (without a cycle) and the layers below it.
 LAYERS = [
-    ("sweep.version", "sweep.errors", "sweep.atomic"),
+    ("sweep.version", "sweep.errors", "sweep.safefs", "sweep.atomic"),
     ("sweep.physics",),
     ("sweep.catalog", "sweep.config"),
     ("sweep.model",),

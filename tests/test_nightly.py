@@ -205,8 +205,8 @@ def test_a_killed_runs_shared_memory_is_reclaimed_and_live_ones_kept(tmp_path):
 
     gone = subprocess.Popen([sys.executable, "-c", "pass"])
     gone.wait()
-    dead = tmp_path / f"capsweep-{gone.pid}-abc"
-    live = tmp_path / f"capsweep-{os.getpid()}-def"
+    dead = tmp_path / f"capsweep-{gone.pid}-abc_0xyz"  # named as mkdtemp names them: 8 characters
+    live = tmp_path / f"capsweep-{os.getpid()}-defghijk"
     other = tmp_path / "capsweep-notapid-ghi"
     for folder in (dead, live, other):
         folder.mkdir()

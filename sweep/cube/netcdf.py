@@ -14,6 +14,7 @@ import xarray as xr
 from sweep.atomic import replacing
 from sweep.model.strategies import STRATEGIES
 from sweep.model.variables import cube_variables
+from sweep.safefs import make_folder
 
 __all__ = ["open_cube", "write_dataset"]
 
@@ -54,7 +55,7 @@ def write_dataset(dataset: xr.Dataset, path: str | Path, compression: int = 0,
     if compression not in range(10):
         raise ValueError(f"compression must be a zlib level 0-9, got {compression!r}")
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    make_folder(path.parent)
     with replacing(path) as temporary:
         try:
             if stream is None:

@@ -14,12 +14,13 @@ import json
 import logging
 import os
 import stat
-import tempfile
 import zipfile
 from collections.abc import Iterable
 from pathlib import Path
 
 import numpy as np
+
+from sweep.atomic import replacing
 
 __all__ = ["chunk_file", "load_chunk", "run_key", "save_chunk"]
 
@@ -55,19 +56,14 @@ def _describe(arrays: dict[str, np.ndarray]) -> dict[str, list]:
 def save_chunk(folder: Path, index: int, result: dict[str, np.ndarray], key: str = "") -> None:
     """
     Write one finished chunk's arrays (the variable registry's checkpointed ones) with their
-    metadata and checksum, atomically: a new temporary file, fsync, rename over the final name.
+    metadata and checksum, atomically: a new temporary file (no link followed), fsync, rename over
+    the final name.
     """
     meta = {"key": key, "index": index, "arrays": _describe(result), "sha256": _digest(result)}
-    handle, temporary = tempfile.mkstemp(dir=folder, prefix=f".chunk-{index:06d}.", suffix=".part")
-    try:
-        with os.fdopen(handle, "wb") as stream:
-            np.savez(stream, **result, **{_META: np.array(json.dumps(meta))})
-            stream.flush()
-            os.fsync(stream.fileno())
-        os.replace(temporary, chunk_file(folder, index))
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
+    with replacing(chunk_file(folder, index)) as temporary, open(temporary, "wb") as stream:
+        np.savez(stream, **result, **{_META: np.array(json.dumps(meta))})
+        stream.flush()
+        os.fsync(stream.fileno())
 
 
 def load_chunk(folder: Path, index: int, key: str = "",

@@ -13,8 +13,10 @@ from __future__ import annotations
 import logging
 import math
 import os
+import re
 import shutil
 import socket
+import stat
 import tempfile
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -35,6 +37,7 @@ from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, pi
 from sweep.model.variables import cube_variables, shape_of
 from sweep.physics.finite_burn import OUTCOMES, fly_capture
 from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.safefs import make_folder
 
 __all__ = ["FINITE_STAGES", "evaluate_finite", "finite_chunks", "finite_layout"]
 
@@ -320,20 +323,47 @@ def _maps_folder(needed: int, checkpoint: Path | None) -> str:
 
 
 def _shared_folder() -> str | None:
-    """A memory-backed folder for the workers' shared output, where the system has one."""
-    return "/dev/shm" if os.path.isdir("/dev/shm") and os.access("/dev/shm", os.W_OK) else None
+    """
+    A memory-backed folder for the workers' shared output, where the system has one: /dev/shm
+    if it is a real folder (not a link) of root's or ours that we may write, and that others may
+    write only with the sticky bit (so none can rename our folder in it).
+    """
+    try:
+        info = os.lstat("/dev/shm")
+    except OSError:
+        return None
+    safe = (stat.S_ISDIR(info.st_mode) and info.st_uid in (0, os.geteuid())
+            and (not info.st_mode & 0o022 or info.st_mode & stat.S_ISVTX))
+    return "/dev/shm" if safe and os.access("/dev/shm", os.W_OK) else None
+
+
+_SHARED_NAME = re.compile(r"capsweep-([0-9]+)-[a-z0-9_]{8}")
+"""How :func:`evaluate_finite` names its shared-output folders: mkdtemp's prefix and 8 random characters."""
 
 
 def _remove_stale_shared(parent: str | None) -> None:
     """
-    Remove shared-output folders left by runs that were killed (``capsweep-<pid>-*`` whose
-    process is gone): in a memory-backed folder they would hold their size in RAM until reboot.
+    Remove shared-output folders left by runs that were killed: in a memory-backed folder they
+    would hold their size in RAM until reboot. Only ours: named exactly as we name them
+    (``capsweep-<pid>-<8 characters>``, nothing more, no newline), a folder (not a link) owned by
+    the current user, whose pid is gone. Anything else is left alone, with a DEBUG line at most.
     """
-    for folder in Path(parent or tempfile.gettempdir()).glob("capsweep-*-*"):
-        pid = folder.name.split("-")[1]
-        if folder.is_dir() and pid.isdigit() and not alive(int(pid)):
-            logger.info("removing %s, left by a killed run (pid %s)", folder, pid)
-            shutil.rmtree(folder, ignore_errors=True)
+    try:
+        with os.scandir(parent or tempfile.gettempdir()) as scan:
+            entries = [entry for entry in scan if entry.name.startswith("capsweep-")]
+    except OSError:
+        return
+    for entry in entries:
+        match = _SHARED_NAME.fullmatch(entry.name)
+        try:
+            info = entry.stat(follow_symlinks=False)
+        except OSError:
+            continue
+        if match is None or not stat.S_ISDIR(info.st_mode) or info.st_uid != os.geteuid():
+            logger.debug("leaving %r alone: not a shared-output folder of this user", entry.path)
+        elif not alive(int(match[1])):
+            logger.info("removing %s, left by a killed run (pid %s)", entry.path, match[1])
+            shutil.rmtree(entry.path, ignore_errors=True)  # rmtree follows no link inside
 
 
 def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = False,
@@ -378,7 +408,7 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
 
     done = set()
     if checkpoint is not None:
-        checkpoint.mkdir(parents=True, exist_ok=True)
+        make_folder(checkpoint, mode=0o700)  # ours alone: nobody else may add or swap a chunk
         done = {i for i in range(len(work)) if chunk_file(checkpoint, i).is_file()}
         if done:
             logger.info("resuming: %d of %d finite-burn chunks already done in %s", len(done), len(work), checkpoint)

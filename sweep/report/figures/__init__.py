@@ -43,6 +43,7 @@ from sweep.report.figures import finite_crossover, finite_winner, plane_change, 
 from sweep.report.figures.common import DPI, figure_title, fill_colour, safe
 from sweep.report.figures.universal import draw_universal_map
 from sweep.report.selection import one_body
+from sweep.safefs import make_folder
 
 __all__ = ["DPI", "FIGURES", "FigureKind", "draw_figure", "draw_universal_map", "figure_files", "fill_colour",
            "register_figure", "unregister_figure", "write_figures"]
@@ -165,7 +166,7 @@ def write_figures(dataset: xr.Dataset, folder: str | Path, workers: int | None =
         The files written, in the order of :func:`figure_files`.
     """
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
+    make_folder(folder)
     figures = _figures(dataset)
     processes = max(1, min(workers or max(joblib.cpu_count(), 1), len(figures)))
     logger.debug("drawing %d figures in %d process(es)", len(figures), processes)
