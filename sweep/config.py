@@ -564,13 +564,13 @@ def load_config(path: str | Path | None = None) -> SweepConfig:
         os.close(descriptor)
     if len(raw) > CONFIG_LIMIT:
         raise ConfigError(f"{path}: config file is larger than the limit of {limit}")
-    if b"\0" in raw:
-        raise ConfigError(f"{path}: config file is binary (a NUL byte at byte {raw.index(0)}), not TOML text; "
-                          "a netCDF cube, for instance, is not a config")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as err:
         raise ConfigError(f"{path}: config file is not UTF-8 text ({err.reason} at byte {err.start})") from err
+    if b"\0" in raw:
+        raise ConfigError(f"{path}: config file is binary (a NUL byte at byte {raw.index(0)}), not TOML text; "
+                          "a netCDF cube, for instance, is not a config")
     return parse_config(text, str(path))
 
 
