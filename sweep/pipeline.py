@@ -209,8 +209,12 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
 
     Notes
     -----
-    A cube recording the same config hash, body-catalog hash and capsweep version is up to
-    date: nothing is written and the result has ``skipped=True``. One writer per folder: the
+    The run is one transaction, recorded in the folder's manifest (:mod:`sweep.manifest`), written
+    once when the cube lands and last of all when the report is done. When :func:`up_to_date`
+    finds every file as the manifest records it for this config, nothing is written and the
+    result has ``skipped=True``; when only the report is missing or changed, the report alone is
+    redone (``action="report"``); otherwise the cube is computed. Files of the previous manifest
+    this run did not write are removed (cubes are kept). One writer per folder: the
     lock is held from the first write to the last. Finished finite-burn chunks are kept in a
     checkpoint folder named by the inputs, so a killed run resumes; it goes once the cube lands.
     """
