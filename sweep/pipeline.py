@@ -234,7 +234,7 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
     check_writable(folder)
     # Checkpoints are kept even with force: they are keyed by the same config, catalog and
     # version, so loading them gives the same cube, and a forced run that is killed resumes.
-    with output_lock(folder), _log_file(folder / LOG_NAME), _logging_stop():
+    with _write_errors(folder), output_lock(folder), _log_file(folder / LOG_NAME), _logging_stop():
         logger.info("run of %s into %s", config.path, folder)
         previous = read_manifest(folder)  # its files the new run does not write are removed before the new manifest
         started = time.perf_counter()
@@ -572,8 +572,14 @@ def _draw_figures(dataset: xr.Dataset, folder: Path, workers: int | None) -> lis
 
 def _writing(folder: Path, action: Callable[[], _T]) -> _T:
     """Run ``action``; an OSError becomes a SweepError naming the file that could not be written."""
-    try:
+    with _write_errors(folder):
         return action()
+
+
+@contextmanager
+def _write_errors(folder: Path) -> Iterator[None]:
+    """An OSError escaping the block (a write, the log file, a folder made read-only) becomes a SweepError."""
+    try:
+        yield
     except OSError as err:
         raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
-
