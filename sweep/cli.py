@@ -8,8 +8,11 @@ from __future__ import annotations
 
 import argparse
 import logging
+import signal
 import sys
-from collections.abc import Sequence
+import threading
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from pathlib import Path
 
 from sweep.version import __version__
@@ -82,11 +85,17 @@ def _run(args: argparse.Namespace) -> int:
     result = run_sweep(config, args.out, workers=args.workers or None, force=args.force, compression=args.compression,
                        scheduler=args.scheduler, progress=sys.stderr.isatty() and not args.quiet)
     if result.skipped:
-        print(f"up to date: {result.cube} (config, body catalog and capsweep version unchanged; --force recomputes)")
+        print(f"up to date: {result.cube} (config, body catalog and capsweep version unchanged, every output file as "
+              "the manifest records it; --force recomputes)")
         return 0
-    print(f"cube: {result.cube}")
+    if result.action == "report":
+        print(f"cube: {result.cube} (unchanged; report redone: {result.reason})")
+    else:
+        print(f"cube: {result.cube}")
+    if result.removed:
+        print(f"removed {len(result.removed)} files of the previous run: {', '.join(p.name for p in result.removed)}")
     _print_report(result.summary, result.figures, result.folder)
-    if not args.quiet:
+    if not args.quiet and result.action == "computed":
         print(f"{result.points:,} grid points x {result.strategies} strategies evaluated and written in "
               f"{result.elapsed:.2f} s")
         print(result.answer)
@@ -158,8 +167,23 @@ def _universal(args: argparse.Namespace) -> int:
     return 0
 
 
+def _raise_terminated(signum: int, frame: object) -> None:
+    from sweep.errors import Terminated
+
+    raise Terminated()
+
+
+def _stop_workers() -> None:
+    """Kill the finite-burn and figure worker processes (joblib's reusable loky executor), if any were started."""
+    from joblib.externals.loky import reusable_executor  # joblib 1.6: the module keeps its one executor here
+
+    executor = getattr(reusable_executor, "_executor", None)
+    if executor is not None:
+        executor.shutdown(wait=False, kill_workers=True)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; return the exit status."""
+    """Run the command line; return the exit status (SIGTERM is handled like Ctrl-C while it runs)."""
     parser = _build_parser()
     args = parser.parse_args(argv)
     verbose, quiet = getattr(args, "verbose", 0), getattr(args, "quiet", False)
@@ -169,7 +193,30 @@ def main(argv: Sequence[str] | None = None) -> int:
     logging.basicConfig(level=level, format="capsweep: %(message)s")
     for handler in logging.getLogger().handlers:  # the file log may lower logger levels; the console keeps its own
         handler.setLevel(level)
-    from sweep.errors import SweepError  # here, not above: --help and --version import nothing of the pipeline
+    if threading.current_thread() is not threading.main_thread():  # signal handlers belong to the main thread
+        return _dispatch(args)
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        return _dispatch(args)
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+@contextmanager
+def _signals_ignored() -> Iterator[None]:
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = {number: signal.signal(number, signal.SIG_IGN) for number in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        yield
+    finally:
+        for number, handler in previous.items():
+            signal.signal(number, handler)
+
+
+def _dispatch(args: argparse.Namespace) -> int:
+    from sweep.errors import SweepError, Terminated  # here, not above: --help and --version import nothing heavy
 
     handlers = {"run": _run, "check": _check, "bodies": _bodies, "summarize": _summarize, "plot": _plot,
                 "universal": _universal, "compare": _compare}
@@ -186,10 +233,14 @@ def main(argv: Sequence[str] | None = None) -> int:
         print("capsweep: error: out of memory; shrink the grid (`capsweep check CONFIG` prints what a run holds) or "
               "use fewer --workers; earlier outputs are untouched", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
-        print("capsweep: interrupted; no new cube was written and earlier outputs are untouched; run the same "
-              "command again to resume (finished finite-burn chunks are kept)", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as err:
+        with _signals_ignored():  # a second Ctrl-C or SIGTERM must not cut the cleanup short
+            _stop_workers()
+        how, code = ("terminated (SIGTERM)", 143) if isinstance(err, Terminated) else ("interrupted", 130)
+        print(f"capsweep: {how}; every output is whole, of this run or the one before (no partial file), the lock "
+              "is released and the worker processes stopped; run the same command again to finish (finished "
+              "finite-burn chunks are kept)", file=sys.stderr)
+        return code
     except BrokenPipeError:  # output piped into a reader that closed early, e.g. `| head`
         sys.stderr.close()
         return 0

@@ -10,7 +10,9 @@ import difflib
 import hashlib
 import json
 import math
+import os
 import re
+import stat
 import tomllib
 from dataclasses import dataclass
 from importlib import resources
@@ -27,6 +29,7 @@ from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.version import __version__
 
 __all__ = [
+    "CONFIG_LIMIT",
     "DEMO_CONFIG",
     "SweepConfig",
     "fingerprint",
@@ -523,23 +526,63 @@ def _check_orbit(body: Body, overrides: dict[str, dict], path: str) -> None:
         )
 
 
+CONFIG_LIMIT = 1 << 20
+"""Largest config file read, bytes (1 MiB): a grid's config is a few KiB; the text is embedded in every cube."""
+
+
 def load_config(path: str | Path | None = None) -> SweepConfig:
-    """Read and validate a TOML config; ``None`` loads the packaged demo."""
+    """
+    Read and validate a TOML config; ``None`` loads the packaged demo.
+
+    Only a regular file (or a link to one) of at most :data:`CONFIG_LIMIT` bytes of text is read:
+    a FIFO, a device (``/dev/zero``), a larger file or a binary one (a NUL byte, e.g. a netCDF
+    cube) is refused with a :class:`ConfigError` before more than ``CONFIG_LIMIT`` + 1 bytes are
+    read, and opening never waits (``O_NONBLOCK``).
+    """
     if path is None:
         text = resources.files("sweep").joinpath(DEMO_CONFIG).read_text(encoding="utf-8")
         return parse_config(text, f"<packaged {DEMO_CONFIG}>")
     path = Path(path)
+    limit = f"{CONFIG_LIMIT:,} bytes (1 MiB)"
     try:
-        raw = path.read_bytes()
+        descriptor = os.open(path, os.O_RDONLY | os.O_NONBLOCK | os.O_CLOEXEC)
     except FileNotFoundError as err:
         raise ConfigError(f"{path}: config file not found") from err
     except OSError as err:
         raise ConfigError(f"{path}: cannot read config file: {err.strerror}") from err
     try:
+        mode = os.fstat(descriptor).st_mode
+        if stat.S_ISDIR(mode):
+            raise ConfigError(f"{path}: cannot read config file: Is a directory")
+        if not stat.S_ISREG(mode):
+            raise ConfigError(f"{path}: not a regular file (a FIFO, socket or device); a config must be a TOML file "
+                              f"of at most {limit}")
+        if os.fstat(descriptor).st_size > CONFIG_LIMIT:
+            raise ConfigError(f"{path}: config file is {os.fstat(descriptor).st_size:,} bytes, above the limit of "
+                              f"{limit}")
+        raw = _read_at_most(descriptor, CONFIG_LIMIT + 1)  # the file may grow while read
+    except OSError as err:
+        raise ConfigError(f"{path}: cannot read config file: {err.strerror}") from err
+    finally:
+        os.close(descriptor)
+    if len(raw) > CONFIG_LIMIT:
+        raise ConfigError(f"{path}: config file is larger than the limit of {limit}")
+    try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as err:
         raise ConfigError(f"{path}: config file is not UTF-8 text ({err.reason} at byte {err.start})") from err
+    if b"\0" in raw:
+        raise ConfigError(f"{path}: config file is binary (a NUL byte at byte {raw.index(0)}), not TOML text; "
+                          "a netCDF cube, for instance, is not a config")
     return parse_config(text, str(path))
+
+
+def _read_at_most(descriptor: int, count: int) -> bytes:
+    parts, left = [], count
+    while left > 0 and (part := os.read(descriptor, min(left, 1 << 16))):
+        parts.append(part)
+        left -= len(part)
+    return b"".join(parts)
 
 
 def fingerprint(config: SweepConfig) -> dict[str, str]:

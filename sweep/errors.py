@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-__all__ = ["CatalogError", "ConfigError", "SweepError"]
+__all__ = ["CatalogError", "ConfigError", "SweepError", "Terminated"]
 
 
 class SweepError(Exception):
@@ -15,3 +15,8 @@ class ConfigError(SweepError, ValueError):
 
 class CatalogError(SweepError, ValueError):
     """The body catalog, or a cube's body data, is inconsistent or incomplete."""
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM arrived (systemd, ``timeout``, ``kill``): raised by the command line's handler, it unwinds a run as
+    Ctrl-C does (temporaries removed, lock released)."""

@@ -20,9 +20,10 @@ import resource
 import shutil
 import stat
 import time
+import uuid
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import NamedTuple, TypeVar
 
@@ -45,11 +46,12 @@ from sweep.engine.impulsive import (
 )
 from sweep.engine.layout import layout
 from sweep.engine.processes import alive
-from sweep.errors import SweepError
+from sweep.errors import SweepError, Terminated
 from sweep.lock import output_lock
+from sweep.manifest import Assessment, Manifest, assess, read_manifest, record, write_manifest
 from sweep.model.strategies import STRATEGIES
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.report.summary import answers, summary_tables, write_summary
+from sweep.report.summary import answers, write_summary
 from sweep.safefs import check_folder, make_folder, open_log, remove_stale_parts, temporary_beside
 
 __all__ = [
@@ -150,6 +152,13 @@ class RunResult:
         True when the cube was already up to date and nothing was written.
     answer : str
         The plain-language answer (:func:`short_answer`); "" when ``skipped``.
+    action : str
+        What the call did: ``"skipped"`` (every file matched the manifest), ``"report"`` (the
+        cube matched, the summary, tables and figures were redone) or ``"computed"``.
+    reason : str
+        Why, from :func:`up_to_date` (e.g. which report files were missing or changed).
+    removed : list of Path
+        Files of the previous run's manifest that this run did not write, now removed.
     """
 
     cube: Path
@@ -161,6 +170,9 @@ class RunResult:
     strategies: int
     skipped: bool
     answer: str = ""
+    action: str = "computed"
+    reason: str = ""
+    removed: list[Path] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
@@ -209,8 +221,12 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
 
     Notes
     -----
-    A cube recording the same config hash, body-catalog hash and capsweep version is up to
-    date: nothing is written and the result has ``skipped=True``. One writer per folder: the
+    The run is one transaction, recorded in the folder's manifest (:mod:`sweep.manifest`), written
+    once when the cube lands and last of all when the report is done. When :func:`up_to_date`
+    finds every file as the manifest records it for this config, nothing is written and the
+    result has ``skipped=True``; when only the report is missing or changed, the report alone is
+    redone (``action="report"``); otherwise the cube is computed. Files of the previous manifest
+    this run did not write are removed (cubes are kept). One writer per folder: the
     lock is held from the first write to the last. Finished finite-burn chunks are kept in a
     checkpoint folder named by the inputs, so a killed run resumes; it goes once the cube lands.
     """
@@ -221,60 +237,78 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
     checkpoint = checkpoint_folder(config, folder)
     points = math.prod(config.shape)
     check_folder(folder)  # before anything is read or removed: a folder others could tamper with is refused
-    if not force and up_to_date(cube_path, config):
+    state = Assessment("cube", "--force", None) if force else up_to_date(cube_path, config, figures)
+    if state.redo == "nothing":
         shutil.rmtree(checkpoint, ignore_errors=True)  # left by a run killed after its cube landed
         logger.info("up to date: %s", cube_path)
-        return RunResult(cube_path, folder, [], [], 0.0, points, 0, True)
-    if not force:
+        return RunResult(cube_path, folder, [], [], 0.0, points, 0, True, action="skipped", reason=state.reason)
+    if state.redo == "cube" and not force:
         check_room(config, folder, workers)
     check_writable(folder)
     # Checkpoints are kept even with force: they are keyed by the same config, catalog and
     # version, so loading them gives the same cube, and a forced run that is killed resumes.
-    with output_lock(folder), _log_file(folder / LOG_NAME):
+    with _write_errors(folder), output_lock(folder), _log_file(folder / LOG_NAME), _logging_stop():
         logger.info("run of %s into %s", config.path, folder)
         remove_stale_checkpoints(config, folder)
         _remove_leftovers(folder, checkpoint)
+        previous = read_manifest(folder)  # its files the new run does not write are removed before the new manifest
         started = time.perf_counter()
-        # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
-        cube = _writing(folder, lambda: run_to_file(
-            config, cube_path, workers=workers, progress=progress, scheduler=scheduler,
-            checkpoint=None if scheduler else checkpoint, compression=compression))
+        if state.redo == "cube":
+            # Evaluated and written chunk by chunk: memory is a few chunks, not the cube.
+            _writing(folder, lambda: run_to_file(
+                config, cube_path, workers=workers, progress=progress, scheduler=scheduler,
+                checkpoint=None if scheduler else checkpoint, compression=compression))
+        else:
+            logger.info("cube %s matches the manifest; redoing the report only (%s)", cube_path, state.reason)
         elapsed = time.perf_counter() - started
         shutil.rmtree(checkpoint, ignore_errors=True)  # the cube has landed
-        with open_checked_cube(cube) as dataset:
+        stale = (previous.names() if previous else set()) - {cube_path.name}
+        cube_entry = ({cube_path.name: state.manifest.files[cube_path.name]} if state.redo == "report"
+                      else _writing(folder, lambda: record([cube_path])))  # hashed once: read back after the write
+        manifest = Manifest(fingerprint(config), cube_path.name, cube_entry, False, figures, tuple(sorted(stale)))
+        if state.redo == "cube":  # the cube is known whole from here on: a kill now costs the report only
+            _writing(folder, lambda: write_manifest(folder, manifest))
+        with open_checked_cube(cube_path) as dataset:
             report = _write_report(dataset, folder, workers, figures=figures)
-            return RunResult(Path(cube), folder, report.summary, report.figures, elapsed,
+            written = [*report.summary, *report.figures]
+            removed = _writing(folder, lambda: _remove_stale(folder, stale - {p.name for p in written}))
+            _writing(folder, lambda: write_manifest(folder, replace(
+                manifest, files={**manifest.files, **record(written)}, complete=True, leftover=())))
+            action = "computed" if state.redo == "cube" else "report"
+            logger.info("%s: %s; %d report files written, %d stale files removed", cube_path,
+                        "cube computed" if action == "computed" else "report redone", len(written), len(removed))
+            return RunResult(cube_path, folder, report.summary, report.figures, elapsed,
                              int(dataset["best_strategy"].size), int(dataset.sizes["strategy"]), False,
-                             short_answer(dataset))
+                             short_answer(dataset), action=action, reason=state.reason, removed=removed)
 
 
 def summarize_cube(path: str | Path, folder: str | Path | None = None, workers: int | None = None) -> ReportFiles:
     """
     Rebuild the summary and figures of an existing cube into ``folder`` (default: the cube's).
 
-    The cube is checked first (:func:`open_checked_cube`, then its tables), so an unreadable or
-    inconsistent cube raises :class:`SweepError` before anything is written.
+    Everything is rendered first, into a hidden folder beside the outputs, and moved into place
+    only when all of it succeeded: an unreadable, damaged or inconsistent cube raises
+    :class:`SweepError` naming it and leaves ``folder`` as it was.
     """
     path = Path(path)
     folder = Path(folder) if folder is not None else path.parent
-    with open_checked_cube(path) as dataset:
-        summary_tables(dataset)  # fail before writing anything if the cube is inconsistent
+    with open_checked_cube(path) as dataset, _reading(path):
         return _write_report(dataset, folder, workers)
 
 
 def plot_cube(path: str | Path, folder: str | Path | None = None, workers: int | None = None) -> list[Path]:
-    """Draw the PNG figures of an existing cube into ``folder`` (default: the cube's); return their paths."""
+    """Draw the PNG figures of an existing cube into ``folder`` (default: the cube's), all or none; return them."""
     path = Path(path)
     folder = Path(folder) if folder is not None else path.parent
-    with open_checked_cube(path) as dataset:
-        return _writing(folder, lambda: _draw_figures(dataset, folder, workers))
+    with open_checked_cube(path) as dataset, _reading(path):
+        return _write_report(dataset, folder, workers, summary=False).figures
 
 
 def compare_files(old: str | Path, new: str | Path, tolerance: float) -> CompareResult:
     """The drift report between two cube files, and whether a relative change exceeds ``tolerance``."""
     from sweep.report.compare import compare_cubes, render_drift
 
-    with open_checked_cube(old) as before, open_checked_cube(new) as after:
+    with open_checked_cube(old) as before, open_checked_cube(new) as after, _reading(f"{old} or {new}"):
         drift = compare_cubes(before, after)
     return CompareResult(render_drift(drift, tolerance), bool(drift.exceeds(tolerance)))
 
@@ -371,14 +405,37 @@ def open_checked_cube(path: str | Path) -> xr.Dataset:
         dataset = xr.open_dataset(path, engine="netcdf4")
     except FileNotFoundError as err:
         raise SweepError(f"{path}: cube not found") from err
-    except (OSError, ValueError) as err:
-        reason = str(err).splitlines()[0] if str(err) else type(err).__name__
-        raise SweepError(f"{path}: not a readable netCDF cube ({reason})") from err
+    except _BAD_FILE as err:
+        raise SweepError(f"{path}: not a readable netCDF cube ({_reason(err)})") from err
     missing = [name for name in CUBE_VARIABLES if name not in dataset]
     if missing:
         dataset.close()
         raise SweepError(f"{path}: not a capsweep cube (lacks {', '.join(missing)})")
     return dataset
+
+
+@contextmanager
+def _reading(path: str | Path) -> Iterator[None]:
+    """
+    The errors netCDF4, HDF5 and xarray raise on a damaged file while its values are read
+    (truncated, bit-flipped, a dimension or variable missing) become a SweepError naming it.
+    """
+    try:
+        yield
+    except SweepError:
+        raise
+    except _BAD_FILE as err:
+        raise SweepError(f"{path}: damaged or not a capsweep cube ({_reason(err)})") from err
+
+
+# What opening or reading a bad netCDF file raises: OSError ("NetCDF: HDF error", "Unknown file format"),
+# RuntimeError ("NetCDF: HDF error" reading a damaged chunk), ValueError (bad attributes or encodings),
+# KeyError and IndexError (a dimension or coordinate missing).
+_BAD_FILE = (OSError, RuntimeError, ValueError, KeyError, IndexError)
+
+
+def _reason(err: BaseException) -> str:
+    return f"{type(err).__name__}: {str(err).splitlines()[0]}" if str(err).strip() else type(err).__name__
 
 
 def checkpoint_folder(config: SweepConfig, folder: Path) -> Path:
@@ -387,16 +444,17 @@ def checkpoint_folder(config: SweepConfig, folder: Path) -> Path:
     return folder / f".{config.name}.{key}.chunks"
 
 
-def up_to_date(cube: Path, config: SweepConfig) -> bool:
-    """The cube exists (writes are atomic, so it is complete) and records the same inputs and version."""
-    if not cube.is_file():
-        return False
-    expected = fingerprint(config)
-    try:
-        with xr.open_dataset(cube, engine="netcdf4") as existing:
-            return all(existing.attrs.get(key) == value for key, value in expected.items())
-    except (OSError, ValueError):
-        return False
+def up_to_date(cube: Path, config: SweepConfig, figures: bool = True) -> Assessment:
+    """
+    What a run of ``config`` writing ``cube`` must redo, from the folder's manifest (:mod:`sweep.manifest`).
+
+    ``redo`` is ``"nothing"`` only when the manifest is complete, records ``config``'s
+    fingerprint and every file it lists (the cube, the summary, tables and figures) has its
+    recorded size and SHA-256; ``"report"`` when the cube does but a report file does not, or
+    the report was never finished; ``"cube"`` otherwise (a damaged cube included). The check
+    reads every listed file once (about 0.75 s per GiB, see :mod:`sweep.manifest`).
+    """
+    return assess(cube.parent, cube.name, fingerprint(config), figures)
 
 
 class Needs(NamedTuple):
@@ -571,10 +629,66 @@ def _remove_leftovers(folder: Path, checkpoint: Path) -> None:
                     ", ".join(str(path) for path in removed))
 
 
-def _write_report(dataset: xr.Dataset, folder: Path, workers: int | None, figures: bool = True) -> ReportFiles:
-    drawn = _writing(folder, lambda: _draw_figures(dataset, folder, workers)) if figures else []
-    summary = _writing(folder, lambda: write_summary(dataset, folder))  # after the figures: it links them
-    return ReportFiles(summary, drawn)
+@contextmanager
+def _logging_stop() -> Iterator[None]:
+    """Log a run stopped by Ctrl-C or SIGTERM (:class:`sweep.errors.Terminated`) while its log file is open."""
+    try:
+        yield
+    except KeyboardInterrupt as err:
+        logger.warning("run stopped: %s; outputs are whole files of this run or the previous one, and the lock is "
+                       "released", "terminated (SIGTERM)" if isinstance(err, Terminated) else "interrupted (Ctrl-C)")
+        raise
+
+
+def _write_report(dataset: xr.Dataset, folder: Path, workers: int | None, figures: bool = True,
+                  summary: bool = True) -> ReportFiles:
+    """
+    Render the figures and the summary (which links them) into a hidden folder inside ``folder``,
+    then move each into place: a failure while rendering leaves ``folder`` exactly as it was.
+    """
+    def stage() -> ReportFiles:
+        folder.mkdir(parents=True, exist_ok=True)
+        _remove_dead_stages(folder)
+        staging = folder / f"{_STAGE_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:12]}"
+        staging.mkdir()
+        try:
+            drawn = _draw_figures(dataset, staging, workers) if figures else []
+            written = write_summary(dataset, staging, figure_folder=None if figures else folder) if summary else []
+            for path in [*drawn, *written]:  # figures first, so every figure summary.md links is there
+                os.replace(path, folder / path.name)
+        finally:
+            shutil.rmtree(staging, ignore_errors=True)
+        return ReportFiles([folder / p.name for p in written], [folder / p.name for p in drawn])
+
+    return _writing(folder, stage)
+
+
+_STAGE_PREFIX = ".capsweep-report-"
+
+
+def _remove_dead_stages(folder: Path) -> None:
+    """Remove staging folders left by killed processes (their pid is in the name)."""
+    from sweep.engine.processes import alive
+
+    for stage in folder.glob(f"{_STAGE_PREFIX}*"):
+        pid = stage.name[len(_STAGE_PREFIX):].split("-")[0]
+        if pid.isdigit() and int(pid) != os.getpid() and not alive(int(pid)):
+            shutil.rmtree(stage, ignore_errors=True)
+
+
+def _remove_stale(folder: Path, names: set[str]) -> list[Path]:
+    """Remove the files of an earlier run's manifest that this run did not write; cubes are kept."""
+    removed = []
+    for name in sorted(names):
+        path = folder / name
+        if path.suffix == ".nc":  # another config's cube: results that cost compute time, never deleted
+            logger.info("kept %s: a cube of an earlier run, no longer described by the summary", path)
+            continue
+        if path.is_file() and not path.is_symlink():
+            path.unlink()
+            removed.append(path)
+            logger.info("removed %s: written by an earlier run, not by this one", path)
+    return removed
 
 
 def _draw_figures(dataset: xr.Dataset, folder: Path, workers: int | None) -> list[Path]:
@@ -585,8 +699,14 @@ def _draw_figures(dataset: xr.Dataset, folder: Path, workers: int | None) -> lis
 
 def _writing(folder: Path, action: Callable[[], _T]) -> _T:
     """Run ``action``; an OSError becomes a SweepError naming the file that could not be written."""
-    try:
+    with _write_errors(folder):
         return action()
+
+
+@contextmanager
+def _write_errors(folder: Path) -> Iterator[None]:
+    """An OSError escaping the block (a write, the log file, a folder made read-only) becomes a SweepError."""
+    try:
+        yield
     except OSError as err:
         raise SweepError(f"{err.filename or folder}: cannot write output: {err.strerror or err}") from err
-

@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from sweep import parse_config, run, write_dataset
 from sweep.cli import main
-from sweep.report.compare import compare_cubes
+from sweep.report.compare import compare_cubes, render_drift
 from tests.conftest import SMALL_CONFIG
 
 
@@ -52,3 +53,22 @@ def test_winner_changes_and_added_variables_are_reported(small_cube):
 def test_compare_errors_exit_2(tmp_path, capsys):
     assert main(["compare", str(tmp_path / "missing.nc"), str(tmp_path / "other.nc")]) == 2
     assert "missing.nc: cube not found" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize(("old", "new", "kind"), [
+    (1.0, np.inf, "finite -> infinite"),
+    (np.inf, 1.0, "infinite -> finite"),
+    (np.nan, 1.0, "NaN -> number"),
+    (1.0, np.nan, "number -> NaN"),
+    (np.inf, -np.inf, "+inf <-> -inf"),
+    (np.nan, np.inf, "NaN -> infinite"),
+])
+def test_changes_to_or_from_nan_or_infinity_exceed_any_tolerance(small_cube, old, new, kind):
+    _, cube = small_cube
+    before, after = cube.copy(deep=True), cube.copy(deep=True)
+    before["delta_v"].values[0, 0, 0, 0, :2] = old  # two points of one variable
+    after["delta_v"].values[0, 0, 0, 0, :2] = new
+    drift = compare_cubes(before, after)
+    assert drift.nonfinite["delta_v"] == {kind: 2} and drift.exceeds(1e300)
+    assert f"delta_v: 2 points changed to or from NaN or infinity ({kind} 2)  EXCEEDS" in render_drift(drift, 1e300)
+    assert compare_cubes(after, after.copy(deep=True)).nonfinite["delta_v"] == {}  # inf = inf, NaN = NaN: no change

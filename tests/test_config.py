@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
+from pathlib import Path
+
 import numpy as np
 import pytest
 
-from sweep.config import load_config, parse_config
+from sweep.config import CONFIG_LIMIT, load_config, parse_config
 from sweep.errors import ConfigError
 
 
@@ -161,3 +166,45 @@ def test_hohmann_arrival_axis():
 def test_hohmann_axis_errors(old, new, message):
     with pytest.raises(ConfigError, match=message):
         parse_config(HOHMANN.replace(old, new), "h.toml")
+
+
+def _load_in_subprocess(path) -> subprocess.CompletedProcess:
+    """load_config(path) in a child process; the timeout only guards against a hang (a FIFO waiting for a writer)."""
+    code = ("import sys\nfrom sweep.config import load_config\nfrom sweep.errors import ConfigError\n"
+            "try:\n    load_config(sys.argv[1])\nexcept ConfigError as err:\n    print(err)\n")
+    return subprocess.run([sys.executable, "-c", code, str(path)], capture_output=True, text=True, timeout=120,
+                          cwd=Path(__file__).resolve().parents[1])
+
+
+def test_a_fifo_is_refused_without_waiting(tmp_path):
+    fifo = tmp_path / "pipe.toml"
+    os.mkfifo(fifo)
+    done = _load_in_subprocess(fifo)
+    assert f"{fifo}: not a regular file (a FIFO, socket or device)" in done.stdout, done.stderr
+
+
+def test_a_device_is_refused_before_reading():
+    with pytest.raises(ConfigError, match=r"/dev/zero: not a regular file .* at most 1,048,576 bytes \(1 MiB\)"):
+        load_config("/dev/zero")
+
+
+def test_a_config_above_the_limit_is_refused(tmp_path, small_config_text):
+    big = tmp_path / "big.toml"
+    big.write_text(small_config_text + "#" * (2 << 20), encoding="utf-8")  # 2 MiB of comment: legal TOML
+    with pytest.raises(ConfigError, match=r"big\.toml: config file is 2,097,\d{3} bytes, above the limit of "
+                                          r"1,048,576 bytes \(1 MiB\)"):
+        load_config(big)
+
+
+def test_a_netcdf_cube_is_refused_as_binary(tmp_path, small_cube):
+    from sweep.cube.netcdf import write_dataset
+
+    _, dataset = small_cube
+    cube = write_dataset(dataset.isel(body=[0], v_inf=[0, 1]), tmp_path / "cube.nc")
+    assert os.path.getsize(cube) <= CONFIG_LIMIT  # small enough that the size is not what refuses it
+    with pytest.raises(ConfigError, match=r"cube\.nc: config file is not UTF-8 text \(invalid start byte at byte 0\)"):
+        load_config(cube)
+    text = tmp_path / "nul.toml"
+    text.write_bytes(b'name = "x"\n\0\n')  # UTF-8, but with a NUL byte: binary
+    with pytest.raises(ConfigError, match=r"nul\.toml: config file is binary \(a NUL byte at byte 11\), not TOML"):
+        load_config(text)

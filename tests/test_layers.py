@@ -17,7 +17,7 @@ LAYERS = [
     ("sweep.model",),
     ("sweep.engine",),
     ("sweep.cube", "sweep.report"),
-    ("sweep.universal", "sweep.lock", "sweep.pipeline"),
+    ("sweep.universal", "sweep.lock", "sweep.manifest", "sweep.pipeline"),
     ("sweep.cli", "sweep.__main__"),
 ]
 

@@ -160,3 +160,29 @@ def test_a_registered_section_follows_each_target_in_the_summary(small_cube):
     least = float(dataset["delta_v"].isel(body=0, target_altitude=0).min())
     assert lines[0] == f"Toy section: least delta-v anywhere here {least:.1f} m/s."
     assert "Toy section" not in render_summary(dataset)  # unregistered again
+
+
+def test_markdown_specials_in_config_text_are_escaped_and_keep_the_tables_intact(small_config_text, tmp_path):
+    import re
+
+    from sweep import parse_config, run
+    from sweep.report.summary import render_summary
+
+    name = "a|b*_c"
+    text = small_config_text.replace('"enceladus"]', f'"{name}"]').replace(
+        'description = "test sweep"', 'description = "a *bold* [link](x) | pipe"') + (
+        f'\n[bodies."{name}"]\ngm = 17.29\nmean_radius = 262.7\nsafe_periapsis_altitude = 30.0\n'
+        'parent = "sun"\nsemi_major_axis = 353.3e6\n')  # test inputs, roughly Vesta-like (from memory)
+    summary = render_summary(run(parse_config(text, "odd.toml"), workers=1))
+    assert "## A\\|b\\*\\_c" in summary and "### A\\|b\\*\\_c, 300 km circular orbit" in summary
+    assert "a \\*bold\\* \\[link\\]\\(x\\) \\| pipe" in summary
+    unescaped = re.compile(r"(?<!\\)[|*_]")
+    for line in summary.splitlines():
+        if "A\\|b" in line or "bold" in line:  # the lines carrying the names: every special character escaped
+            assert not unescaped.search(line.replace("**Caution.**", "")), line
+    # every table row has as many cells as its header: no row split by a name
+    blocks = re.findall(r"(?m)^(\|.*\|\n\|[-:|]+\|\n(?:\|.*\|\n)*)", summary)
+    assert blocks
+    for block in blocks:
+        rows = block.splitlines()
+        assert len({len(re.findall(r"(?<!\\)\|", row)) for row in rows}) == 1, block  # cell borders per row

@@ -30,7 +30,7 @@ from sweep.report.selection import (
     strategy_labels,
 )
 
-__all__ = ["SECTIONS", "Section", "answers", "render_summary", "summary_tables", "write_summary"]
+__all__ = ["SECTIONS", "Section", "answers", "escape_markdown", "render_summary", "summary_tables", "write_summary"]
 
 _MAX_ROWS = 12  # periapsis rows shown per Markdown table; the CSV has them all
 _DAY = 86400.0  # s
@@ -41,6 +41,28 @@ _DIVE = "two_burn"
 _TURNS = {"direct": "direct turns with its burn", "two_burn": "two_burn splits the turn",
           "three_burn": "three_burn turns at apoapsis"}
 _TWO_BURN_SPLIT = "two_burn_first_plane_change"  # the cube variable of two_burn's turn at its first burn
+
+
+# Characters that start Markdown (CommonMark, GitHub tables) markup anywhere in a line; each is escaped with a
+# backslash, which CommonMark allows before any ASCII punctuation. "-", "+", "=", "." and digits start markup
+# only at the beginning of a line, where no escaped text is put.
+_MARKDOWN_SPECIAL = set("\\`*_{}[]<>()#!|~&$")
+
+
+def escape_markdown(text: object) -> str:
+    r"""
+    ``text`` as literal Markdown: special characters backslash-escaped, line breaks as spaces.
+
+    For text from the config or the cube (body names, the description, the config's name and
+    path) placed into summary.md, so that ``a|b*_c`` neither splits a table nor turns italic.
+
+    Examples
+    --------
+    >>> escape_markdown("a|b*_c")
+    'a\\|b\\*\\_c'
+    """
+    flat = " ".join(str(text).splitlines())
+    return "".join(f"\\{c}" if c in _MARKDOWN_SPECIAL else c for c in flat)
 
 
 def _win_runs(best: np.ndarray, v_inf: np.ndarray, names: list[str]) -> list[tuple[str, float, float]]:
@@ -382,16 +404,17 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     periapses = dataset["periapsis_altitude"].values
     points = int(np.prod([dataset.sizes[d] for d in dataset["best_strategy"].dims]))
     lines = [
-        f"# {dataset.attrs.get('title', 'capsweep summary')}",
+        f"# {escape_markdown(dataset.attrs.get('title', 'capsweep summary'))}",
         "",
         f"> **Caution.** {dataset.attrs.get('comment', '')}",
         "",
-        f"{dataset.attrs.get('summary', '')}",
+        f"{escape_markdown(dataset.attrs.get('summary', ''))}",
         "",
         f"Grid: {len(bodies)} bodies x {v_inf.size} arrival speeds ({v_inf[0]:g} to {v_inf[-1]:g} km/s) x "
         f"{dataset.sizes['target_altitude']} target altitudes x {periapses.size} periapsis altitudes "
         f"({periapses[0]:g} to {periapses[-1]:g} km) = {points:,} points, {len(names)} strategies each. "
-        f"Produced by {dataset.attrs.get('source', 'capsweep')}; {dataset.attrs.get('history', '')}.",
+        f"Produced by {escape_markdown(dataset.attrs.get('source', 'capsweep'))}; "
+        f"{escape_markdown(dataset.attrs.get('history', ''))}.",
         "",
         "Strategies: " + dataset.attrs.get("strategies", ""),
         "",
@@ -401,7 +424,7 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
         best = array(cube, "best_strategy", *GRID)
         crossing = _crossovers(cube, challengers, *_TARGET_PERIAPSIS)
         lines += [
-            f"## {body.capitalize()}",
+            f"## {escape_markdown(body.capitalize())}",
             "",
             f"GM {float(cube['body_gm']):.6g} m3/s2, mean radius {float(cube['body_radius']):,.1f} km, "
             f"lowest safe periapsis {float(cube['body_safe_periapsis_altitude']):g} km, sphere of influence "
@@ -410,9 +433,10 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
             "",
         ]
         for _, name, title in [f for f in figures or [] if f[0] == body]:
-            lines += [f"![{title}]({name})", ""]
+            # file names are made of [a-z0-9._-] (figures.common.safe): a link destination as they are
+            lines += [f"![{escape_markdown(title)}]({name})", ""]
         for t in range(dataset.sizes["target_altitude"]):
-            lines += [f"### {body.capitalize()}, {_orbit_name(cube, t)}", "",
+            lines += [f"### {escape_markdown(body.capitalize())}, {_orbit_name(cube, t)}", "",
                       sentences[body][t], ""]
             shown = _rows_to_show(periapses.size)
             lines += ["| periapsis | winner along v_inf (km/s) |" + "".join(f" {n} = direct at |" for n in challengers),
@@ -444,26 +468,27 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     return "\n".join(lines)
 
 
-def write_summary(dataset: xr.Dataset, folder: str | Path) -> list[Path]:
+def write_summary(dataset: xr.Dataset, folder: str | Path, figure_folder: str | Path | None = None) -> list[Path]:
     """
     Write summary.md and the CSV tables into ``folder``; return the paths written.
 
-    The figures of :func:`sweep.report.figures.write_figures` already in ``folder`` are linked from
-    summary.md (write them first); missing ones are left out.
+    The figures of :func:`sweep.report.figures.write_figures` already in ``figure_folder``
+    (default ``folder``) are linked from summary.md (write them first); missing ones are left
+    out. Every table and the text are rendered before the first file is written, so a failure
+    while rendering writes nothing; each file is whole or absent (:func:`sweep.atomic.replacing`).
     """
     from sweep.report.figures import figure_files  # here, not above: matplotlib loads only when a summary is written
 
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
+    figure_folder = Path(figure_folder) if figure_folder is not None else folder
     tables = summary_tables(dataset)
+    figures = [figure for figure in figure_files(dataset) if (figure_folder / figure[1]).is_file()]
+    texts = {f"{name}.csv": table.to_csv(index=False, float_format="%.6g") for name, table in tables.items()}
+    texts = {"summary.md": render_summary(dataset, tables, figures), **texts}
+    folder.mkdir(parents=True, exist_ok=True)
     written = []
-    for name, table in tables.items():
-        path = folder / f"{name}.csv"
-        with replacing(path) as temporary:
-            table.to_csv(temporary, index=False, float_format="%.6g")
-        written.append(path)
-    path = folder / "summary.md"
-    figures = [figure for figure in figure_files(dataset) if (folder / figure[1]).is_file()]
-    with replacing(path) as temporary:
-        temporary.write_text(render_summary(dataset, tables, figures), encoding="utf-8")
-    return [path, *written]
+    for name, text in texts.items():
+        with replacing(folder / name) as temporary:
+            temporary.write_text(text, encoding="utf-8")
+        written.append(folder / name)
+    return written
