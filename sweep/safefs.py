@@ -130,7 +130,9 @@ def open_log(path: str | Path) -> TextIO:
         descriptor = os.open(path, flags, output_mode())  # O_NONBLOCK: a planted FIFO cannot hang the run
     except OSError as err:
         reason = {errno.ELOOP: "it is a symbolic link (not followed)", errno.ENXIO: "it is not a regular file",
-                  errno.EISDIR: "it is a folder"}.get(err.errno, err.strerror or str(err))
+                  errno.EISDIR: "it is a folder"}.get(err.errno)
+        if reason is None:  # not a planted file: a full disk, a read-only folder; reported as a failed write
+            raise
         raise SweepError(f"{refusal}{reason}; remove it") from err
     info = os.fstat(descriptor)
     problem = ("it is not a regular file" if not stat.S_ISREG(info.st_mode)

@@ -264,14 +264,14 @@ def test_kill_9_after_the_cube_lands_then_rerun_completes_the_report(config_file
 
 def test_a_log_file_that_cannot_be_opened_is_exit_2_and_releases_the_lock(config_file, tmp_path, monkeypatch, capsys):
     # The folder turned read-only between the write check and the log file (root ignores modes: injected).
-    import logging
+    import sweep.pipeline
 
     out = tmp_path / "out"
 
     def refuse(path, *args, **kwargs):
         raise PermissionError(13, "Permission denied", str(path))
 
-    monkeypatch.setattr(logging, "FileHandler", refuse)
+    monkeypatch.setattr(sweep.pipeline, "open_log", refuse)
     assert main(["run", str(config_file()), "--out", str(out), "-q", "--workers", "1"]) == 2
     err = capsys.readouterr().err
     assert err == f"capsweep: error: {out / 'capsweep.log'}: cannot write output: Permission denied\n"
