@@ -122,3 +122,53 @@ def test_a_low_address_space_limit_is_refused_at_once(finite_file, tmp_path):
                         done.stderr), done.stderr
     assert not out.exists()
     assert BASELINE_ADDRESS_SPACE == 1 << 30
+
+
+def _summary_peak(targets: int, folder) -> tuple[int, int]:
+    """tracemalloc's peak while summarizing a one-body cube of ``targets`` target altitudes read from a file,
+    and the bytes of its per-point variables."""
+    import textwrap
+    import tracemalloc
+
+    import xarray as xr
+
+    from sweep import run_to_file
+    from sweep.report.summary import render_summary, summary_tables
+
+    config = parse_config(textwrap.dedent(f"""
+        # Test input of our own: one body, many targets, a fine periapsis axis.
+        name = "report-memory-{targets}"
+        [grid]
+        bodies = ["mars"]
+        v_inf = {{ start = 0.5, stop = 8.0, num = 400 }}
+        target_altitude = {{ start = 300.0, stop = 20000.0, num = {targets} }}
+        periapsis_altitude = {{ start = 200.0, stop = 20000.0, num = 200 }}
+        [spacecraft]
+        specific_impulse = 320.0
+        arrival_mass = 1000.0
+        """), "memory.toml")
+    path = run_to_file(config, folder / f"memory-{targets}.nc", workers=1)
+    with xr.open_dataset(path) as cube:
+        per_point = sum(v.nbytes for v in cube.data_vars.values()
+                        if "v_inf" in v.dims and "periapsis_altitude" in v.dims)
+        tracemalloc.start()
+        try:
+            render_summary(cube, summary_tables(cube))
+            _, peak = tracemalloc.get_traced_memory()
+        finally:
+            tracemalloc.stop()
+    return peak, per_point
+
+
+def test_the_summary_reads_one_target_at_a_time(tmp_path, monkeypatch):
+    # 5 and 20 targets (about 40 and 160 MB of per-point variables): the summary's peak follows one
+    # target's slice (v_inf x periapsis) and the blocks of its reductions, not the cube; read whole,
+    # it would grow fourfold. Blocks of 1 MB here, so that they apply at this size (64 MB in use).
+    import sweep.report.selection
+
+    monkeypatch.setattr(sweep.report.selection, "BLOCK_BYTES", 1 << 20)
+    small, small_cube = _summary_peak(5, tmp_path)
+    large, large_cube = _summary_peak(20, tmp_path)
+    assert large_cube > 3.9 * small_cube
+    assert large < 2 * small, f"peak {small / 1e6:.1f} MB, then {large / 1e6:.1f} MB"
+    assert large < 0.25 * large_cube, f"peak {large / 1e6:.1f} MB of {large_cube / 1e6:.0f} MB"

@@ -84,8 +84,8 @@ def count_values(variable: xr.DataArray, size: int) -> np.ndarray:
     """How often each integer 0 .. size - 1 occurs in ``variable`` (values outside ignored); read block by block."""
     counts = np.zeros(size, dtype=np.int64)
     for block in blocks(variable):
-        values = block.values.ravel()
-        counts += np.bincount(values[(values >= 0) & (values < size)].astype(np.int64), minlength=size)[:size]
+        values = block.values
+        counts += [np.count_nonzero(values == code) for code in range(size)]  # no copy wider than a mask
     return counts
 
 

@@ -21,10 +21,10 @@ from sweep.atomic import replacing
 from sweep.model.strategies import REFERENCE, crossover_variable, cube_labels, lookup
 from sweep.report.format import km, speed
 from sweep.report.selection import (
-    GRID,
     array,
     body_label,
     challenger_names,
+    count_values,
     lowest_periapsis_below,
     one_body,
     strategy_labels,
@@ -35,6 +35,7 @@ __all__ = ["SECTIONS", "Section", "answers", "escape_markdown", "render_summary"
 _MAX_ROWS = 12  # periapsis rows shown per Markdown table; the CSV has them all
 _DAY = 86400.0  # s
 _TARGET_PERIAPSIS = ("target_altitude", "periapsis_altitude")
+_SPEED_PERIAPSIS = ("v_inf", "periapsis_altitude")  # one target's slice of the grid, as the tables read it
 # The finite-burn section's short answer follows this strategy (the low dive), where the cube has it.
 _DIVE = "two_burn"
 # How each strategy makes a plane change, in the plane-change section's heading; others say their registry entry's.
@@ -110,27 +111,26 @@ def summary_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     wins, crossover, shares = [], [], []
     for body in bodies:
         cube = one_body(dataset, body)
-        best = array(cube, "best_strategy", *GRID)
-        saving = array(cube, "saving_over_direct", *GRID)
-        propellant = array(cube, "propellant_saving", *GRID)
-        time = array(cube, "time_to_orbit", "strategy", *GRID)
         crossing = _crossovers(cube, challengers, *_TARGET_PERIAPSIS)
         for t, target in enumerate(dataset["target_altitude"].values):
+            here = cube.isel(target_altitude=t)  # one target at a time: memory is v_inf x periapsis, any grid
+            best = array(here, "best_strategy", *_SPEED_PERIAPSIS)
+            saving = array(here, "saving_over_direct", *_SPEED_PERIAPSIS)
             for p, periapsis in enumerate(periapses):
-                for label, start, stop in _win_runs(best[:, t, p], v_inf, names):
+                for label, start, stop in _win_runs(best[:, p], v_inf, names):
                     wins.append((body, target, periapsis, label, start, stop))
                 crossover.append((body, target, periapsis, *(float(crossing[n][t, p]) for n in challengers)))
-            block = best[:, t, :]
-            feasible = int((block >= 0).sum())
+            feasible = int((best >= 0).sum())
             for code, name in enumerate(names):
-                mask = block == code
+                mask = best == code
                 count = int(mask.sum())
                 row = [body, target, name, count, count / feasible if feasible else np.nan]
                 if count and name != REFERENCE:
-                    where = np.where(mask, saving[:, t, :], -np.inf)
+                    where = np.where(mask, saving, -np.inf)
                     v, p = np.unravel_index(np.argmax(where), where.shape)
-                    row += [saving[v, t, p], propellant[v, t, p], v_inf[v], float(periapses[p]),
-                            time[code, v, t, p] / _DAY]
+                    at = {"v_inf": v, "periapsis_altitude": p}
+                    row += [saving[v, p], float(here["propellant_saving"].isel(at)), v_inf[v], float(periapses[p]),
+                            float(here["time_to_orbit"].isel({**at, "strategy": code})) / _DAY]
                 else:
                     row += [0.0 if count else np.nan, 0.0 if count else np.nan, np.nan, np.nan, np.nan]
                 shares.append(row)
@@ -155,26 +155,27 @@ def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
     """Per body, target and plane change: share won, median cost of the turn, median two_burn split (if any)."""
     bodies, names = cube_labels(dataset)
     split_known = _TWO_BURN_SPLIT in dataset
-    turn = (*GRID, "plane_change")
+    turn = (*_SPEED_PERIAPSIS, "plane_change")
     rows = []
     for body in bodies:
         cube = one_body(dataset, body)
-        best = array(cube, "plane_change_best_strategy", *turn)
-        # least cost over the strategies, with and without the turn
-        with_turn = np.fmin.reduce(array(cube, "plane_change_delta_v", "strategy", *turn), axis=0)
-        coplanar = np.fmin.reduce(array(cube, "delta_v", "strategy", *GRID), axis=0)
-        share = array(cube, _TWO_BURN_SPLIT, *turn) if split_known else None
         for t, target in enumerate(dataset["target_altitude"].values):
+            here = cube.isel(target_altitude=t)  # one target at a time: memory is v_inf x periapsis x angle
+            best = array(here, "plane_change_best_strategy", *turn)
+            # least cost over the strategies, with and without the turn
+            with_turn = np.fmin.reduce(array(here, "plane_change_delta_v", "strategy", *turn), axis=0)
+            coplanar = np.fmin.reduce(array(here, "delta_v", "strategy", *_SPEED_PERIAPSIS), axis=0)
+            share = array(here, _TWO_BURN_SPLIT, *turn) if split_known else None
             for i, angle in enumerate(dataset["plane_change"].values):
-                block = best[:, t, :, i]
+                block = best[..., i]
                 feasible = int((block >= 0).sum())
-                cost = (with_turn[:, t, :, i] - coplanar[:, t, :])
+                cost = (with_turn[..., i] - coplanar)
                 cost = cost[np.isfinite(cost)]
                 row = [body, target, angle]
                 row += [(block == s).sum() / feasible if feasible else np.nan for s in range(len(names))]
                 row.append(float(np.median(cost)) if cost.size else np.nan)
                 if split_known:
-                    split = share[:, t, :, i]
+                    split = share[..., i]
                     split = split[np.isfinite(split)]
                     row.append(float(np.median(split)) if split.size else np.nan)
                 rows.append(row)
@@ -190,25 +191,26 @@ def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
     meanings = dataset["finite_status"].attrs["flag_meanings"].split()
     engine_codes = [meanings.index(m) for m in ("engine_cannot_capture", "propellant_exhausted", "surface_impact")]
     thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
-    finite = ("strategy", *GRID, "thrust")
+    finite = ("strategy", *_SPEED_PERIAPSIS, "thrust")
     crossing, losses = [], []
     for body in bodies:
         cube = one_body(dataset, body)
-        loss = (cube["finite_delta_v"] - cube["delta_v"]).transpose(*finite).values
-        best = array(cube, "finite_best_strategy", *GRID, "thrust")
-        status = array(cube, "finite_status", *finite)
         speeds = _crossovers(cube, challengers, *_TARGET_PERIAPSIS, "thrust", finite=True)
         for t, target in enumerate(dataset["target_altitude"].values):
+            here = cube.isel(target_altitude=t)  # one target at a time: memory is v_inf x periapsis x thrust
+            loss = (here["finite_delta_v"] - here["delta_v"]).transpose(*finite).values
+            best = array(here, "finite_best_strategy", *_SPEED_PERIAPSIS, "thrust")
+            status = array(here, "finite_status", *finite)
             for f, thrust in enumerate(thrusts):
                 for p, periapsis in enumerate(dataset["periapsis_altitude"].values):
                     crossing.append((body, target, periapsis, thrust, ratios[f],
                                      *(float(speeds[n][t, p, f]) for n in challengers)))
-                block = best[:, t, :, f]
+                block = best[..., f]
                 feasible = int((block >= 0).sum())
                 for s, name in enumerate(names):
-                    values = loss[s, :, t, :, f]
+                    values = loss[s, ..., f]
                     flown = values[np.isfinite(values)]
-                    engine = np.isin(status[s, :, t, :, f], engine_codes).mean()
+                    engine = np.isin(status[s, ..., f], engine_codes).mean()
                     won = int((block == s).sum())
                     losses.append((body, target, thrust, ratios[f], name, won, won / feasible if feasible else np.nan,
                                    float(np.median(flown)) if flown.size else np.nan,
@@ -242,9 +244,9 @@ def _status_lines(cube: xr.Dataset, names: list[str]) -> list[str]:
     meanings = cube["status"].attrs["flag_meanings"].split()
     lines = []
     for name in names:
-        codes, counts = np.unique(cube["status"].sel(strategy=name).values, return_counts=True)
+        counts = count_values(cube["status"].sel(strategy=name), len(meanings))  # block by block
         total = counts.sum()
-        parts = [f"{meanings[c]} {n / total:.0%}" for c, n in zip(codes, counts, strict=True) if c != 0]
+        parts = [f"{meanings[c]} {n / total:.0%}" for c, n in enumerate(counts) if c != 0 and n]
         if parts:
             lines.append(f"- `{name}` infeasible at part of the grid: {', '.join(parts)}.")
     return lines
@@ -421,7 +423,6 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     ]
     for body in bodies:
         cube = one_body(dataset, body)
-        best = array(cube, "best_strategy", *GRID)
         crossing = _crossovers(cube, challengers, *_TARGET_PERIAPSIS)
         lines += [
             f"## {escape_markdown(body.capitalize())}",
@@ -441,8 +442,9 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
             shown = _rows_to_show(periapses.size)
             lines += ["| periapsis | winner along v_inf (km/s) |" + "".join(f" {n} = direct at |" for n in challengers),
                       "|---:|---|" + "---:|" * len(challengers)]
-            for p in shown:
-                runs = _win_runs(best[:, t, p], v_inf, names)
+            best = array(cube.isel(target_altitude=t, periapsis_altitude=shown), "best_strategy", *_SPEED_PERIAPSIS)
+            for i, p in enumerate(shown):
+                runs = _win_runs(best[:, i], v_inf, names)
                 text = "; ".join(f"{label} {start:g}-{stop:g}" for label, start, stop in runs)
                 lines.append(f"| {km(periapses[p])} | {text} |"
                              + "".join(f" {speed(crossing[n][t, p])} |" for n in challengers))
