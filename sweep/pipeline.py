@@ -51,6 +51,7 @@ from sweep.lock import output_lock
 from sweep.manifest import Assessment, Manifest, assess, read_manifest, record, write_manifest
 from sweep.model.strategies import STRATEGIES
 from sweep.physics.rocket import STANDARD_GRAVITY
+from sweep.report.selection import BLOCK_BYTES
 from sweep.report.summary import answers, write_summary
 from sweep.safefs import check_folder, make_folder, open_log, remove_stale_parts, temporary_beside
 
@@ -79,6 +80,7 @@ CUBE_VARIABLES = ("best_strategy", "saving_over_direct", "status", "crossover_v_
 """Variables every capsweep cube has; a netCDF file lacking one is not a capsweep cube."""
 
 LOG_NAME = "capsweep.log"
+_PANELS = 6  # periapsis panels a figure draws at most (report/figures/winner.py)
 _CHECKPOINT_NAME = re.compile(r"[0-9a-f]{16}\.chunks")  # after ".<config name>.": the key and the suffix
 # Virtual memory a run maps besides its results: the interpreter, numpy, xarray, netCDF/HDF5,
 # matplotlib, thread stacks and worker pools. Measured here as VmPeak 650 MB (impulsive) to 800
@@ -368,7 +370,8 @@ def check_text(config: SweepConfig) -> str:
                      f"shared by the workers: {size_text(needs.maps)} (in /dev/shm, or on disk where it lacks room)")
     lines.append(f"  memory for the run's results (streamed to the cube chunk by chunk), on all cores: about "
                  f"{size_text(needs.evaluation)}")
-    lines.append(f"  memory for the summary and figures (one body at a time): about {size_text(needs.report)}")
+    lines.append(f"  memory for the summary and figures (a body's target, or a figure's panels, at a time): about "
+                 f"{size_text(needs.report)}")
     return "\n".join(lines)
 
 
@@ -464,7 +467,7 @@ class Needs(NamedTuple):
     checkpoints: int  # finished finite-burn chunks, on disk until the cube lands
     maps: int  # the finite-burn arrays the workers share: in /dev/shm, or on disk where it lacks room
     evaluation: int  # results held while evaluating and writing the cube (the shared maps included)
-    report: int  # what the summary and figures read at once: one body's per-point arrays, and a copy
+    report: int  # what the summary and figures read at once: a body's target, or a figure's panels
 
     @property
     def memory(self) -> int:
@@ -473,10 +476,15 @@ class Needs(NamedTuple):
 
 def estimate_needs(config: SweepConfig, workers: int | None = None) -> Needs:
     """Disk and memory a run of ``config`` needs, phase by phase (see :class:`Needs`)."""
-    per_point = _array_bytes(layout(config, ("impulsive", "plane", "finite")))
+    nbody, _, ntarget, nperiapsis = config.shape
+    per_body = _array_bytes(layout(config, ("impulsive", "plane", "finite"))) // max(nbody, 1)
     finite = _array_bytes(layout(config, ("finite", "finite_crossover")))
+    # The summary reads one body's target at a time, the figures up to six periapses of a body, and
+    # reductions go block by block (a block and a mask of it): twice the largest, for temporaries.
+    drawn = per_body * min(_PANELS, nperiapsis) // max(nperiapsis, 1)
+    report = 2 * max(per_body // max(ntarget, 1), drawn) + 2 * min(BLOCK_BYTES, per_body)
     return Needs(cube=estimate_bytes(config), checkpoints=_array_bytes(layout(config, ("finite",))), maps=finite,
-                 evaluation=estimate_memory(config, workers), report=2 * per_point // max(len(config.bodies), 1))
+                 evaluation=estimate_memory(config, workers), report=report)
 
 
 def _array_bytes(shapes) -> int:
