@@ -50,6 +50,7 @@ from sweep.errors import SweepError, Terminated
 from sweep.lock import output_lock
 from sweep.manifest import Assessment, Manifest, assess, read_manifest, record, write_manifest
 from sweep.model.strategies import STRATEGIES
+from sweep.model.variables import cube_variables
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.report.selection import BLOCK_BYTES
 from sweep.report.summary import answers, write_summary
@@ -414,6 +415,10 @@ def open_checked_cube(path: str | Path) -> xr.Dataset:
     if missing:
         dataset.close()
         raise SweepError(f"{path}: not a capsweep cube (lacks {', '.join(missing)})")
+    problem = _structure_issue(dataset)
+    if problem:
+        dataset.close()
+        raise SweepError(f"{path}: damaged or not a capsweep cube ({problem})")
     return dataset
 
 
@@ -428,13 +433,39 @@ def _reading(path: str | Path) -> Iterator[None]:
     except SweepError:
         raise
     except _BAD_FILE as err:
-        raise SweepError(f"{path}: damaged or not a capsweep cube ({_reason(err)})") from err
+        problem = _structure_problem(path) if isinstance(err, _BAD_STRUCTURE) else None
+        if isinstance(err, _BAD_STRUCTURE) and problem is None:
+            raise  # the file is as a cube should be: a defect of capsweep's, not a damaged input (exit 3)
+        raise SweepError(f"{path}: damaged or not a capsweep cube ({problem or _reason(err)})") from err
 
 
 # What opening or reading a bad netCDF file raises: OSError ("NetCDF: HDF error", "Unknown file format"),
 # RuntimeError ("NetCDF: HDF error" reading a damaged chunk), ValueError (bad attributes or encodings),
-# KeyError and IndexError (a dimension or coordinate missing).
+# KeyError and IndexError (a dimension or coordinate missing). The last three are also what a defect
+# in the report raises: they count as damage only where the file's structure is not a cube's.
 _BAD_FILE = (OSError, RuntimeError, ValueError, KeyError, IndexError)
+_BAD_STRUCTURE = (ValueError, KeyError, IndexError)
+
+
+def _structure_problem(path: str | Path) -> str | None:
+    """What in the file at ``path`` differs from a cube's structure (:func:`_structure_issue`), or why it
+    cannot be read; None where it has a cube's structure."""
+    try:
+        with xr.open_dataset(path, engine="netcdf4") as dataset:
+            return _structure_issue(dataset)
+    except _BAD_FILE as err:
+        return _reason(err)
+
+
+def _structure_issue(dataset: xr.Dataset) -> str | None:
+    """How ``dataset`` differs from a cube: a variable of the registry with other dimensions, a grid
+    coordinate missing (without it, positions would pass for values); None if it does not."""
+    for variable in cube_variables(STRATEGIES):
+        if variable.name in dataset and dataset[variable.name].dims != variable.dims:
+            return f"{variable.name} has dimensions {dataset[variable.name].dims}, not {variable.dims}"
+    missing = {dim for name in CUBE_VARIABLES for dim in dataset[name].dims
+               if dim not in dataset.variables and dim not in ("body", "strategy", "burn")}
+    return f"coordinates missing: {', '.join(sorted(missing))}" if missing else None
 
 
 def _reason(err: BaseException) -> str:

@@ -276,3 +276,29 @@ def test_a_log_file_that_cannot_be_opened_is_exit_2_and_releases_the_lock(config
     err = capsys.readouterr().err
     assert err == f"capsweep: error: {out / 'capsweep.log'}: cannot write output: Permission denied\n"
     assert not (out / LOCK_NAME).exists() and not (out / "small-test.nc").exists()
+
+
+def test_a_defect_in_the_report_is_not_called_a_damaged_cube(small_cube, tmp_path, capsys, monkeypatch):
+    # A ValueError on a cube whose structure is a cube's is capsweep's fault: exit 3, not 2.
+    import sweep.pipeline
+    from sweep.cube.netcdf import write_dataset
+
+    _, dataset = small_cube
+    good = Path(write_dataset(dataset, tmp_path / "good.nc"))
+
+    def defect(*args, **kwargs):
+        raise ValueError("cannot specify both keyword and positional arguments to .isel")
+
+    monkeypatch.setattr(sweep.pipeline, "write_summary", defect)
+    assert main(["summarize", str(good), "--out", str(tmp_path / "o")]) == 3
+    assert "internal error: ValueError" in capsys.readouterr().err
+
+
+def test_a_cube_without_a_coordinate_is_damaged(small_cube, tmp_path, capsys):
+    from sweep.cube.netcdf import write_dataset
+
+    _, dataset = small_cube
+    bad = Path(write_dataset(dataset.drop_vars("v_inf"), tmp_path / "bad.nc"))
+    assert main(["summarize", str(bad), "--out", str(tmp_path / "o")]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"capsweep: error: {bad}: damaged or not a capsweep cube (coordinates missing: v_inf)"), err
