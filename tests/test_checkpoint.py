@@ -48,6 +48,15 @@ def _members(path):
         return {name: data[name] for name in data.files}
 
 
+def _edit_record(folder, index, edit):
+    """Rewrite chunk ``index`` with its arrays and record changed by ``edit(members, record)``."""
+    members = _members(chunk_file(folder, index))
+    meta = json.loads(str(members["__checkpoint__"]))
+    edit(members, meta)
+    members["__checkpoint__"] = np.array(json.dumps(meta))
+    np.savez(chunk_file(folder, index), **members)
+
+
 def test_a_swapped_chunk_is_recomputed(saved, tmp_path, caplog):
     def spoil(folder):
         # another chunk of the same run and the same shape, under this chunk's name
@@ -60,12 +69,11 @@ def test_a_swapped_chunk_is_recomputed(saved, tmp_path, caplog):
 
 def test_a_chunk_with_an_array_missing_is_recomputed(saved, tmp_path, caplog):
     def spoil(folder):
-        members = _members(chunk_file(folder, 1))
-        del members["gravity_loss"]
-        meta = json.loads(str(members["__checkpoint__"]))
-        del meta["arrays"]["gravity_loss"]  # a consistent record of the incomplete set
-        members["__checkpoint__"] = np.array(json.dumps(meta))
-        np.savez(chunk_file(folder, 1), **members)
+        def drop(members, meta):
+            del members["gravity_loss"]
+            del meta["arrays"]["gravity_loss"]  # a consistent record of the incomplete set
+
+        _edit_record(folder, 1, drop)
 
     warnings = _resume(saved, tmp_path, spoil, caplog)
     assert any("chunk-000001.npz not used" in w and "not this run's" in w for w in warnings), warnings
@@ -83,11 +91,7 @@ def test_altered_values_fail_the_checksum(saved, tmp_path, caplog):
 
 def test_a_chunk_of_another_run_is_recomputed(saved, tmp_path, caplog):
     def spoil(folder):
-        members = _members(chunk_file(folder, 4))
-        meta = json.loads(str(members["__checkpoint__"]))
-        meta["key"] = "0" * 64  # as saved by a run of other inputs
-        members["__checkpoint__"] = np.array(json.dumps(meta))
-        np.savez(chunk_file(folder, 4), **members)
+        _edit_record(folder, 4, lambda members, meta: meta.update(key="0" * 64))  # as saved by a run of other inputs
 
     warnings = _resume(saved, tmp_path, spoil, caplog)
     assert any("chunk-000004.npz not used" in w and "another run" in w for w in warnings), warnings

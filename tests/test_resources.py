@@ -160,6 +160,7 @@ def _summary_peak(targets: int, folder) -> tuple[int, int]:
     return peak, per_point
 
 
+@pytest.mark.slow  # about 10 s: two cubes of 40 and 160 MB written and summarized
 def test_the_summary_reads_one_target_at_a_time(tmp_path, monkeypatch):
     # 5 and 20 targets (about 40 and 160 MB of per-point variables): the summary's peak follows one
     # target's slice (v_inf x periapsis) and the blocks of its reductions, not the cube; read whole,

@@ -133,6 +133,7 @@ def test_a_write_error_mid_run_is_exit_2_and_releases_the_lock(config_file, tmp_
     assert not (out / LOCK_NAME).exists()
 
 
+@pytest.mark.slow  # about 7 s: a run, then a failing summarize
 def test_summarize_renders_everything_before_moving_anything(config_file, tmp_path, monkeypatch, capsys):
     import sweep.pipeline
 
@@ -206,6 +207,7 @@ def _wait_for(condition, limit: float = 120.0) -> bool:
     return True
 
 
+@pytest.mark.slow  # about 11 s: a finite-burn run in a subprocess, stopped by SIGTERM
 @pytest.mark.slow  # a finite sweep run twice (once to the end, once terminated)
 def test_sigterm_is_handled_like_ctrl_c(tmp_path):
     config = tmp_path / "resume.toml"
@@ -236,7 +238,7 @@ def test_sigterm_is_handled_like_ctrl_c(tmp_path):
     assert _wait_for(lambda: not any(_running(pid) for pid in workers), limit=30), workers
 
 
-@pytest.mark.slow  # three runs killed at random moments after the cube landed, each run again
+@pytest.mark.slow  # about 6 s each: three runs killed at random moments after the cube landed, each run again
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_kill_9_after_the_cube_lands_then_rerun_completes_the_report(config_file, tmp_path, seed):
     path = config_file()
