@@ -42,6 +42,10 @@ logger = logging.getLogger(__name__)
 
 _KM = 1.0e3  # m per km
 STREAM_CHUNK_POINTS = 1 << 19  # grid points per streamed chunk: about 90 MB of results each
+# Relative tolerance of the time cap: times are sums of half periods of radii that root finders
+# return, exact to ~1e-15 relative; a time equal to the cap to rounding must not flip the status
+# (1e-9 of a 3-day cap is 0.26 ms, far below any clock a mission plans by).
+_TIME_RTOL = 1.0e-9
 
 
 @dataclass(frozen=True)
@@ -108,7 +112,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
         maneuver = strategy.kernel(0.0, geometry)
         time = np.broadcast_to(maneuver.time, upper.shape)
         cap = np.inf if config.max_time_to_orbit is None else config.max_time_to_orbit
-        exceeded = time > cap
+        exceeded = time > cap * (1.0 + _TIME_RTOL)
         code = _status_codes(strategy, body, target_altitude, periapsis_altitude, far,
                              periapsis_radius, bound, exceeded)
         status.append(code)

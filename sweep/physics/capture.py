@@ -365,8 +365,10 @@ def _scan_and_refine(cost, lower, upper, forward, inverse):
     grid = np.indices(shape, sparse=True)
     low_u, high_u = forward(lower)[..., None], forward(upper)[..., None]
     u = low_u + (high_u - low_u) * np.linspace(0.0, 1.0, _SCAN_POINTS)
-    candidates = inverse(u)
-    candidates[..., 0], candidates[..., -1] = lower, upper  # the ends exactly, not via inverse(forward)
+    # inside the ends, which come exactly, not via inverse(forward): that may round one ulp outside
+    # them (all candidates of a zero-width interval, say)
+    candidates = np.clip(inverse(u), lower[..., None], upper[..., None])
+    candidates[..., 0], candidates[..., -1] = lower, upper
     cost_scan = cost(candidates, tuple(g[..., None] for g in grid))
     best = np.argmin(np.where(np.isnan(cost_scan), np.inf, cost_scan), axis=-1)[..., None]
     scan_best = np.take_along_axis(candidates, best, axis=-1)[..., 0]
@@ -390,7 +392,7 @@ def _scan_and_refine(cost, lower, upper, forward, inverse):
             np.where(keep_left, moved_cost, cost_right),
             np.where(keep_left, cost_left, moved_cost),
         )
-    refined = inverse(0.5 * (left + right))
+    refined = np.clip(inverse(0.5 * (left + right)), lower, upper)
     refined_cost = cost(refined, grid)
     chosen = np.where(refined_cost < scan_cost, refined, scan_best)
     return np.where(np.isnan(upper) | np.isnan(scan_cost), np.nan, chosen)
@@ -460,7 +462,8 @@ def time_limited_apoapsis(
     The time is a sum of two half periods, each rising with the apoapsis (Kepler's third
     law, [1]_ Ch. 2), so bisection on log radius between the smallest apoapsis and
     :math:`2 (\mu (t_{max}/2\pi)^2)^{1/3}` (where each half period alone reaches
-    :math:`t_{max}/2`) brackets the single root.
+    :math:`t_{max}/2`) brackets the single root. Where only the smallest apoapsis fits, it is
+    returned exactly (the degenerate three-burn sequence, identical to the two-burn one).
     """
     far = target_radius if target_apoapsis is None else target_apoapsis
     gm, periapsis_radius, target_radius, max_time, far = np.broadcast_arrays(
@@ -478,7 +481,11 @@ def time_limited_apoapsis(
         fits = time_of(np.exp(middle)) <= max_time
         low = np.where(fits, middle, low)
         high = np.where(fits, high, middle)
-    return np.where(time_of(lower) <= max_time, np.exp(low), np.nan)
+    # Where no larger apoapsis fits, the answer is the smallest one itself, returned exactly:
+    # exp(log(r)) can come back one ulp above r, and an intermediate ellipse one ulp away from
+    # the target circle costs a whole extra half period in the time model (a circle costs none).
+    limit = np.where(low == np.log(lower), lower, np.exp(low))
+    return np.where(time_of(lower) <= max_time, limit, np.nan)
 
 
 def equal_cost_v_inf(

@@ -1,0 +1,60 @@
+"""Issue 12, items 3 to 7 (a physics review): each case named with its numbers and their sources."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from sweep import parse_config, run
+from sweep.model.strategies import strategy_names
+from sweep.physics.capture import best_intermediate_apoapsis, time_limited_apoapsis
+
+_DAY = 86400.0  # s
+DIRECT, TWO, THREE = (strategy_names().index(n) for n in ("direct", "two_burn", "three_burn"))
+
+
+def _config(bodies: str, target: str, periapsis: str, extra: str = "", v_inf: str = "[1.0, 3.0]") -> str:
+    """A config of our own: one small grid, everything else default."""
+    return (f'name = "review"\n[grid]\nbodies = {bodies}\nv_inf = {v_inf}\ntarget_altitude = {target}\n'
+            f"periapsis_altitude = {periapsis}\n[spacecraft]\nspecific_impulse = 320.0\narrival_mass = 1000.0\n{extra}")
+
+
+# --- item 4: the time cap at the degenerate apoapsis -------------------------------------------------------------
+
+MARS_FAR = _config('["mars"]', "[100000.0]", "[300.0, 10000.0]", "[three_burn]\nmax_time_to_orbit = 3.0\n")
+
+
+def test_three_burn_at_the_degenerate_apoapsis_fits_the_time_cap_like_two_burn():
+    # Mars, target 100,000 km, periapsis 300 km, 3-day cap (a case of our own). The half period of
+    # the Mars-approach ellipse 300 km x 100,000 km is 2.177 days (Kepler's third law; the cube's own
+    # two_burn time), the half period of the 100,000 km circle 5.8 days, so no apoapsis above the
+    # target fits and three_burn degenerates to two_burn. Before the fix the chosen apoapsis came back
+    # as exp(log(r_t)), 1.3e-7 m above r_t, and the model added the circle's 5.8-day half period:
+    # three_burn was flagged time_limit_exceeded (status 6) at 300 km but not at 10,000 km.
+    cube = run(parse_config(MARS_FAR, "mars_far.toml"), workers=1).isel(body=0, target_altitude=0)
+    two, three = cube.isel(strategy=TWO), cube.isel(strategy=THREE)
+    assert (three.status.values == 0).all()
+    assert two.time_to_orbit.values[0, 0] / _DAY == pytest.approx(2.1766, abs=1e-4)  # Kepler's third law, above
+    np.testing.assert_array_equal(three.time_to_orbit.values, two.time_to_orbit.values)  # the same sequence
+    np.testing.assert_array_equal(three.delta_v.values, two.delta_v.values)
+    assert two.delta_v.values[0, 0] == pytest.approx(661.07, abs=0.01)  # vis-viva by hand at v_inf 1 km/s
+
+
+def test_the_smallest_apoapsis_comes_back_exactly():
+    # Kernels: where only max(r_p, r_t) fits, both the time limit and the chosen apoapsis return it
+    # exactly (exact float equality is the point: one ulp above the circle costs a half period).
+    mars = parse_config(MARS_FAR, "mars_far.toml").bodies[0]
+    r_p, r_t = mars.radius + 300e3, mars.radius + 100000e3
+    limit = time_limited_apoapsis(mars.gm, r_p, r_t, 3 * _DAY)
+    assert float(limit) == r_t
+    assert float(best_intermediate_apoapsis(mars.gm, r_p, r_t, limit)) == r_t
+
+
+def test_a_cap_equal_to_the_time_to_rounding_is_met():
+    # The time check allows 1e-9 of the cap for rounding (sweep/engine/impulsive.py _TIME_RTOL): a cap
+    # stated as the two_burn time itself, in days, must leave two_burn ok.
+    cube = run(parse_config(MARS_FAR, "mars_far.toml"), workers=1).isel(body=0, target_altitude=0)
+    days = float(cube.time_to_orbit.isel(strategy=TWO).values[0, 0]) / _DAY
+    capped = MARS_FAR.replace("max_time_to_orbit = 3.0", f"max_time_to_orbit = {days!r}")
+    again = run(parse_config(capped, "capped.toml"), workers=1).isel(body=0, target_altitude=0)
+    assert int(again.status.isel(strategy=TWO).values[0, 0]) == 0
