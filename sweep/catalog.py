@@ -46,6 +46,15 @@ class Body:
         """Hill radius [m]; NaN without a parent."""
         return float(hill_radius(self.semi_major_axis, self.gm, self.parent_gm))
 
+    def bound_radius(self, of: str = "smaller") -> float:
+        """
+        The radius [m] a three-burn apoapsis bound is a fraction of: ``"hill"``, ``"sphere_of_influence"``
+        or ``"smaller"`` (the smaller of the two, the default); NaN without a parent.
+        """
+        return {"smaller": lambda: min(self.sphere_of_influence, self.hill_radius),
+                "hill": lambda: self.hill_radius,
+                "sphere_of_influence": lambda: self.sphere_of_influence}[of]()
+
 
 def catalog_text() -> str:
     """Return the packaged catalog file's text (hashed and quoted in cubes)."""

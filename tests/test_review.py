@@ -58,3 +58,48 @@ def test_a_cap_equal_to_the_time_to_rounding_is_met():
     capped = MARS_FAR.replace("max_time_to_orbit = 3.0", f"max_time_to_orbit = {days!r}")
     again = run(parse_config(capped, "capped.toml"), workers=1).isel(body=0, target_altitude=0)
     assert int(again.status.isel(strategy=TWO).values[0, 0]) == 0
+
+
+# --- item 5: what the apoapsis bound is a fraction of ---------------------------------------------------------------
+
+ENCELADUS = _config('["enceladus"]', "[100.0]", "[50.0, 100.0]")
+
+
+def test_the_default_bound_is_the_smaller_radius_as_before():
+    # The default ("smaller") is today's rule, 0.5 x min(Hill radius, sphere of influence), for every
+    # catalog body (the radii are computed independently here from a (m/M)^(2/5) and a (m/3M)^(1/3)),
+    # and a cube with the default equals one with apoapsis_bound_of = "smaller" stated (attributes
+    # included; only the config text in the global attributes differs).
+    from sweep.catalog import catalog
+    from sweep.engine.impulsive import plan_body
+
+    default = parse_config(_config('["mars"]', "[300.0]", "[250.0]"), "d.toml")
+    for name, body in catalog().items():
+        if not body.parent:
+            continue
+        ratio = body.gm / body.parent_gm
+        expected = 0.5 * min(body.semi_major_axis * ratio**0.4, body.semi_major_axis * (ratio / 3) ** (1 / 3))
+        assert body.bound_radius() * 0.5 == pytest.approx(expected, rel=1e-12), name  # float rounding only
+    assert plan_body(default.bodies[0], default).apoapsis_bound == 0.5 * default.bodies[0].bound_radius("smaller")
+    stated = _config('["mars", "moon"]', "[300.0]", "[250.0]", '[three_burn]\napoapsis_bound_of = "smaller"\n')
+    one = run(parse_config(_config('["mars", "moon"]', "[300.0]", "[250.0]"), "d.toml"), workers=1)
+    two = run(parse_config(stated, "d.toml"), workers=1)
+    one.attrs, two.attrs = {}, {}
+    assert one.identical(two)
+    assert one.apoapsis_bound.attrs["comment"].startswith("0.5 x min(Hill radius, sphere of influence); ")
+
+
+def test_hill_makes_enceladus_capturable_where_smaller_does_not():
+    # Enceladus (catalog: a = 238,040 km about Saturn, GM 7.21037 vs 37,931,206 km3 s-2): sphere of
+    # influence 487.8 km, Hill radius 949.0 km (the formulas above, computed by hand); the lowest safe
+    # periapsis radius is 302.1 km. Half the smaller radius, 243.9 km, lies inside the body's safe
+    # altitude, so every strategy is sphere_of_influence_too_small; half the Hill radius, 474.5 km,
+    # admits a 100 km (352 km radius) circular target.
+    smaller = run(parse_config(ENCELADUS, "e.toml"), workers=1)
+    hill = run(parse_config(ENCELADUS + '[three_burn]\napoapsis_bound_of = "hill"\n', "e.toml"), workers=1)
+    assert float(smaller.apoapsis_bound[0]) == pytest.approx(243.9, abs=0.1)
+    assert float(hill.apoapsis_bound[0]) == pytest.approx(474.5, abs=0.1)
+    assert (smaller.status.values == 1).all()  # 1: sphere_of_influence_too_small (sweep/model/statuses.py)
+    assert (hill.status.isel(strategy=DIRECT).values == 0).all()
+    assert np.isfinite(hill.delta_v.isel(strategy=DIRECT).values).all()
+    assert 'apoapsis_bound_of = "hill"' in hill.apoapsis_bound.attrs["comment"]

@@ -96,7 +96,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     periapsis_radius = body.radius + periapsis_altitude
     target_apoapsis = target_apoapsis_radius(body, config, target_radius)
     far = target_radius if target_apoapsis is None else target_apoapsis
-    bound = config.apoapsis_fraction * min(body.sphere_of_influence, body.hill_radius)
+    bound = config.apoapsis_fraction * body.bound_radius(config.apoapsis_bound_of)
     upper = np.full(np.broadcast_shapes(target_radius.shape, periapsis_radius.shape), bound)
     if config.max_time_to_orbit is not None:
         # NaN where even the smallest apoapsis is too slow: fmin keeps the bound, and the

@@ -65,6 +65,14 @@ _FREE = ("an orbit of the target's eccentricity e whose periapsis the mission ma
          "circular target r = 2 mu / v_inf^2); NaN where that periapsis is below the lowest safe periapsis or "
          "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target")
 
+# What the apoapsis bound is a fraction of, by the config's [three_burn] apoapsis_bound_of
+_BOUND_OF = {
+    "smaller": "min(Hill radius, sphere of influence)",
+    "hill": "Hill radius (config: apoapsis_bound_of = \"hill\"; the sphere of influence ignored)",
+    "sphere_of_influence": "sphere-of-influence radius (config: apoapsis_bound_of = \"sphere_of_influence\"; the "
+                           "Hill radius ignored)",
+}
+
 
 def _none(config) -> dict[str, Any]:
     return {}
@@ -163,7 +171,7 @@ _BODY = (
              "body"),
     Variable("hill_radius", ("body",), "km", "Hill radius, a (m/3M)^(1/3)", "body"),
     Variable("apoapsis_bound", ("body",), "km", "largest admissible apoapsis radius", "body",
-             attrs=lambda config: {"comment": f"{config.apoapsis_fraction} x min(Hill radius, sphere of influence); "
+             attrs=lambda config: {"comment": f"{config.apoapsis_fraction} x {_BOUND_OF[config.apoapsis_bound_of]}; "
                                    "the fraction follows Shen and Tremaine 2008 (AJ 136), prograde orbits bound to "
                                    "about half the Hill radius"}),
     Variable("free_periapsis_altitude", ("body", "v_inf", "target_altitude"), "km",
