@@ -103,3 +103,72 @@ def test_hill_makes_enceladus_capturable_where_smaller_does_not():
     assert (hill.status.isel(strategy=DIRECT).values == 0).all()
     assert np.isfinite(hill.delta_v.isel(strategy=DIRECT).values).all()
     assert 'apoapsis_bound_of = "hill"' in hill.apoapsis_bound.attrs["comment"]
+
+
+# --- item 7: how far a crossover moves per m/s of cost ------------------------------------------------------------
+
+SENSITIVE = _config('["moon", "mars"]', "[400.0, 2000.0]", "[250.0, 300.0]", v_inf="[1.0]")
+
+
+def _cost_gap(v, shift, gm, r_p, r_t, r_a, name):
+    """Challenger minus direct total at arrival speed ``v`` (kernels of sweep.physics.capture), plus ``shift``."""
+    from sweep.physics.capture import direct_capture, three_burn_capture, two_burn_capture
+
+    burns = (two_burn_capture(v, gm, r_p, r_t) if name == "crossover_v_inf"
+             else three_burn_capture(v, gm, r_p, r_t, r_a)).burns
+    return float(sum(burns) - direct_capture(v, gm, r_t).burns[0]) + shift
+
+
+def _crossover_cases():
+    """(crossover, sensitivity, cost gap of (v, shift), case) for each point and challenger of SENSITIVE."""
+    from functools import partial
+
+    from sweep.engine.impulsive import plan_body
+
+    config = parse_config(SENSITIVE, "s.toml")
+    cube = run(config, workers=1)
+    for b, body in enumerate(config.bodies):
+        g = plan_body(body, config).geometry
+        for t, p in np.ndindex(2, 2):
+            radii = {"r_p": float(g.periapsis_radius[0, p]), "r_t": float(g.target_radius[t, 0]),
+                     "r_a": float(np.asarray(g.apoapsis_radius)[t, p])}
+            for name in ("crossover_v_inf", "three_burn_crossover_v_inf"):
+                gap = partial(_cost_gap, gm=body.gm, name=name, **radii)
+                yield cube[name].values[b, t, p], cube[f"{name}_sensitivity"].values[b, t, p], gap, (b, t, p, name)
+
+
+def test_crossover_sensitivity_is_the_root_shift_per_m_s_of_cost():
+    # Independent: scipy's brentq finds the equal-cost speed of the kernels' own totals with the cost
+    # constant shifted by +-h; the central difference (root(+h) - root(-h)) / 2h must match the closed
+    # form 1 / |dD/dv|. With h = 0.01 m/s to 1e-4 (the difference's curvature term is O(h^2)); with
+    # h = 1 m/s, the case the issue names, to 6 %: the roots move by 100+ m/s, where D(v) is curved
+    # enough that the central difference differs from the derivative by up to 5 % (seen: 117.0 vs
+    # 119.3 and 176.8 vs 185.4 m/s per m/s at the Moon).
+    from scipy.optimize import brentq
+
+    checked, vanished = 0, []
+    for crossover, sensitivity, gap, case in _crossover_cases():
+        root = brentq(gap, 0.0, 30000.0, args=(0.0,), xtol=1e-9)
+        assert crossover * 1e3 == pytest.approx(root, rel=1e-9), case  # closed form vs brentq, both exact
+        for h, rel in ((0.01, 1e-4), (1.0, 0.06)):
+            if gap(0.0, -h) < 0:  # no root left once the gap shrinks by h
+                vanished.append((case, h))
+                continue
+            shifted = [brentq(gap, 0.0, 30000.0, args=(s,), xtol=1e-9) for s in (h, -h)]
+            assert sensitivity * 1e3 == pytest.approx(abs(shifted[0] - shifted[1]) / (2 * h), rel=rel), (case, h)
+            checked += 1
+    # 2 bodies x 2 targets x 2 periapses x 2 challengers x 2 shifts. At Mars, 400 km target, the three-burn
+    # cost gap at v_inf = 0 is only 0.62 and 0.41 m/s (sensitivities 445 and 670 m/s per m/s), so a 1 m/s
+    # shift removes that crossover altogether: the ill-conditioning at its extreme.
+    assert checked == 30
+    assert vanished == [((1, 0, p, "three_burn_crossover_v_inf"), 1.0) for p in (0, 1)]
+
+
+def test_three_burn_crossover_moves_100_to_300_m_s_per_m_s_at_the_moon():
+    # The issue's figure, at a case of our own: the Moon, 400 km circular target, periapsis 250 and
+    # 300 km. The three-burn crossover, sqrt(2 mu / r_a) = 0.565 km/s (README, "Crossover speeds"),
+    # moves 117 and 177 m/s per m/s of cost difference (the closed form, checked above against brentq).
+    cube = run(parse_config(SENSITIVE, "s.toml"), workers=1).isel(body=0, target_altitude=0)
+    assert cube.three_burn_crossover_v_inf.values == pytest.approx([0.5646, 0.5646], abs=1e-4)
+    assert cube.three_burn_crossover_v_inf_sensitivity.values * 1e3 == pytest.approx([117.0, 176.8], abs=0.1)
+    assert cube.three_burn_crossover_v_inf_sensitivity.attrs["units"] == "km m-1"  # km/s per m/s

@@ -28,6 +28,7 @@ from sweep.model.statuses import status_code
 from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, pick_best
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
+    equal_cost_sensitivity,
     equal_cost_v_inf,
     free_periapsis_capture,
     time_limited_apoapsis,
@@ -56,7 +57,8 @@ class BodyPlan:
     status: np.ndarray  # int8 (strategy, target, periapsis)
     times: np.ndarray  # s (strategy, target, periapsis), NaN where infeasible
     apoapsis_bound: float  # m
-    crossover: dict[str, np.ndarray]  # m/s (target, periapsis) by challenger crossover variable
+    # m/s (target, periapsis) by challenger crossover variable; and by its "_sensitivity", m/s per m/s
+    crossover: dict[str, np.ndarray]
 
 
 def _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
@@ -128,6 +130,8 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
                                  constants[DIRECT] - constants[index])
         usable = (status[DIRECT] == 0) & (status[index] == 0) & (speed >= low) & (speed <= high)
         crossover[strategy.crossover_variable] = np.where(usable, speed, np.nan)
+        sensitivity = equal_cost_sensitivity(body.gm, strategy.first_burn_radius(geometry), target_radius, speed)
+        crossover[f"{strategy.crossover_variable}_sensitivity"] = np.where(usable, sensitivity, np.nan)
     return BodyPlan(geometry, status, np.stack(times), bound, crossover)
 
 
@@ -243,7 +247,7 @@ def prepare(config: SweepConfig, workers: int | None = None, progress: bool = Fa
     plans = threads(delayed(plan_body)(body, config) for body in config.bodies)
     for index, (body, plan) in enumerate(zip(config.bodies, plans, strict=True)):
         for name, speed in plan.crossover.items():
-            out[name][index] = speed / _KM
+            out[name][index] = speed / _KM  # sensitivities: to km/s per m/s
         out["body_gm"][index] = body.gm
         out["body_radius"][index] = body.radius / _KM
         out["body_safe_periapsis_altitude"][index] = body.safe_periapsis_altitude / _KM

@@ -239,6 +239,16 @@ def _crossover(strategy, reference: str) -> Variable:
                     attrs=attrs)
 
 
+def _crossover_sensitivity(strategy, reference: str) -> Variable:
+    comment = (f"1 / |d(delta-v of {strategy.name} - delta-v of {reference}) / d v_inf| at the crossover, closed form "
+               "(sweep.physics.capture.equal_cost_sensitivity; each cost is sqrt(v_inf^2 + 2 mu / r_1) + a constant): "
+               "the km/s by which the crossover moves when either cost changes by 1 m/s (a model error, a margin); "
+               "large where both first burns grow alike with v_inf. NaN where the crossover is NaN")
+    return Variable(f"{strategy.crossover_variable}_sensitivity", ("body", "target_altitude", "periapsis_altitude"),
+                    "km m-1", f"shift of the {strategy.name} crossover arrival speed per unit change of its cost "
+                    f"difference with {reference} (km/s per m/s)", "crossover", attrs=_static(comment=comment))
+
+
 def _finite_crossover(strategy, reference: str) -> Variable:
     def attrs(config) -> dict[str, Any]:
         v_min, v_max = float(config.v_inf.min()), float(config.v_inf.max())
@@ -262,7 +272,7 @@ def cube_variables(strategies: Iterable, reference: str = "direct", config=None)
     challengers = [s for s in strategies if s.name != reference]
     found = [
         *_IMPULSIVE, *(v for v in own if v.stage == "impulsive"),
-        *(_crossover(s, reference) for s in challengers),
+        *(v for s in challengers for v in (_crossover(s, reference), _crossover_sensitivity(s, reference))),
         *_BODY,
         _plane_total(strategies), *(v for v in own if v.stage == "plane"), *_PLANE_RESULTS,
         *_FINITE_VARIABLES, *(_finite_crossover(s, reference) for s in challengers),

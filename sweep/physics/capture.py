@@ -46,6 +46,7 @@ __all__ = [
     "combined_burn",
     "best_intermediate_apoapsis",
     "direct_capture",
+    "equal_cost_sensitivity",
     "equal_cost_v_inf",
     "three_burn_capture",
     "time_limited_apoapsis",
@@ -529,3 +530,40 @@ def equal_cost_v_inf(
         square = first_speed**2 - escape_first
     valid = (offset != 0) & (total > 0) & (first_speed >= 0) & (second_speed >= 0) & (square >= 0)
     return np.where(valid, np.sqrt(np.where(valid, square, 0.0)), np.nan)
+
+
+def equal_cost_sensitivity(
+    gm: ArrayLike, first_radius: ArrayLike, second_radius: ArrayLike, v_inf: ArrayLike
+) -> np.ndarray:
+    r"""
+    How far the equal-cost speed moves per unit change of the cost offset: the root's condition.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    first_radius, second_radius : numeric
+        Radii of the first burn of sequence 1 and of sequence 2, as in :func:`equal_cost_v_inf`. [m]
+    v_inf : numeric
+        The equal-cost speed (a root from :func:`equal_cost_v_inf`). [m/s]
+
+    Returns
+    -------
+    sensitivity : numeric
+        :math:`|dv/dK| = 1 / |dD/dv|` at the root, in m/s of arrival speed per m/s of cost
+        offset; inf at :math:`v = 0` or equal radii, NaN where ``v_inf`` is NaN. [1]
+
+    Notes
+    -----
+    The cost difference is :math:`D(v) = \sqrt{v^2 + A} - \sqrt{v^2 + B} - K` with
+    :math:`A = 2\mu/r_1`, :math:`B = 2\mu/r_2` (:func:`equal_cost_v_inf`), so
+    :math:`dD/dv = v (1/\sqrt{v^2 + A} - 1/\sqrt{v^2 + B})`, and by the implicit function
+    theorem a change :math:`\delta K` moves the root by :math:`\delta K / (dD/dv)`. Both
+    square roots are nearly equal where :math:`v^2` dwarfs :math:`A` and :math:`B`, so the
+    derivative is small and the root ill-conditioned there.
+    """
+    v = np.asarray(v_inf, dtype=float)
+    first = np.sqrt(v**2 + 2.0 * np.asarray(gm) / np.asarray(first_radius, dtype=float))
+    second = np.sqrt(v**2 + 2.0 * np.asarray(gm) / np.asarray(second_radius, dtype=float))
+    with np.errstate(divide="ignore"):
+        return 1.0 / np.abs(v * (1.0 / first - 1.0 / second))
