@@ -172,3 +172,42 @@ def test_three_burn_crossover_moves_100_to_300_m_s_per_m_s_at_the_moon():
     assert cube.three_burn_crossover_v_inf.values == pytest.approx([0.5646, 0.5646], abs=1e-4)
     assert cube.three_burn_crossover_v_inf_sensitivity.values * 1e3 == pytest.approx([117.0, 176.8], abs=0.1)
     assert cube.three_burn_crossover_v_inf_sensitivity.attrs["units"] == "km m-1"  # km/s per m/s
+
+
+# --- item 6: the free-periapsis reference for a target given by its period --------------------------------------------
+
+MARS_7H = _config('["mars"]', "[300.0, 2058.5]", "[250.0]", "[target_orbit]\nperiod = 7.0\n", v_inf="[2.649]")
+
+
+def test_free_periapsis_at_fixed_eccentricity_and_at_fixed_period():
+    # Mars, 7-hour target orbits, v_inf 2.649 km/s (the Earth-Mars Hohmann arrival, README), target
+    # periapsis 300 km and 2058.5 km (r_p = 5448 km, the optimum of Curtis Example 8.5, from memory).
+    # free_periapsis_delta_v keeps the eccentricity: at 2058.5 km it is the Curtis optimum, 1,471 m/s
+    # (Curtis prints 1.470 km/s for v_inf 2.648), yet direct capture into the 7-hour orbit at 300 km
+    # costs 1,213 m/s in the same cube. The optimum at fixed period is at the lowest safe periapsis
+    # (sweep.physics.capture.free_periapsis_capture_at_period): checked against scipy's bounded
+    # minimize_scalar over every periapsis from the lowest safe one to a.
+    from scipy.optimize import minimize_scalar
+
+    from sweep.physics.capture import direct_capture
+
+    config = parse_config(MARS_7H, "mars_7h.toml")
+    mars = config.bodies[0]
+    cube = run(config, workers=1).isel(body=0, v_inf=0)
+    assert float(cube.free_periapsis_delta_v[1]) == pytest.approx(1471.1, abs=0.1)  # Curtis Ex. 8.5, above
+    assert float(cube.free_periapsis_altitude[1]) == pytest.approx(2058.5, abs=5.0)  # r_p 5448 km printed to 1 km
+    assert float(cube.delta_v.isel(strategy=DIRECT, periapsis_altitude=0)[0]) == pytest.approx(1212.8, abs=0.1)
+
+    a = np.cbrt(mars.gm * (7 * 3600 / (2 * np.pi)) ** 2)  # Kepler's third law
+
+    def burn(r):
+        return float(direct_capture(2649.0, mars.gm, r, target_apoapsis=2 * a - r).burns[0])
+
+    lowest = mars.radius + mars.safe_periapsis_altitude
+    best = minimize_scalar(burn, bounds=(lowest, a), method="bounded", options={"xatol": 1e-3})
+    assert best.x == pytest.approx(lowest, abs=1.0)  # the optimum sits on the lower end (m)
+    fixed_period = float(cube.free_periapsis_period_delta_v)
+    assert fixed_period == pytest.approx(burn(lowest), rel=1e-12)  # the same vis-viva expression
+    assert fixed_period < 1212.8 < 1471.1  # cheaper than both: a lower periapsis, the target's period
+    assert "optimum at fixed eccentricity" in cube.free_periapsis_delta_v.attrs["long_name"]
+    assert "optimum at fixed period" in cube.free_periapsis_period_delta_v.attrs["long_name"]

@@ -31,6 +31,7 @@ from sweep.physics.capture import (
     equal_cost_sensitivity,
     equal_cost_v_inf,
     free_periapsis_capture,
+    free_periapsis_capture_at_period,
     time_limited_apoapsis,
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed, semi_major_axis_from_period
@@ -264,6 +265,12 @@ def prepare(config: SweepConfig, workers: int | None = None, progress: bool = Fa
         usable = (radius >= body.radius + body.safe_periapsis_altitude) & (apoapsis <= plan.apoapsis_bound)
         out["free_periapsis_altitude"][index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
         out["free_periapsis_delta_v"][index] = np.where(usable, burn, np.nan)
+        if "free_periapsis_period_delta_v" in out:  # the same, at the target's period instead of its shape
+            lowest = body.radius + body.safe_periapsis_altitude
+            axis = semi_major_axis_from_period(body.gm, config.target_period)
+            burn = free_periapsis_capture_at_period(config.v_inf * _KM, body.gm, axis, lowest)
+            usable = 2.0 * axis - lowest <= plan.apoapsis_bound
+            out["free_periapsis_period_delta_v"][index] = np.where(usable, burn, np.nan)
     if config.thrust is not None:
         out.update(evaluate_finite(config, plans, workers, progress, scheduler=scheduler, checkpoint=checkpoint))
     return plans, out

@@ -48,7 +48,7 @@ _PLANE = (*DIMENSIONS, "plane_change")
 Stage = Literal["body", "crossover", "impulsive", "plane", "finite", "finite_crossover"]
 STAGES: tuple[str, ...] = ("impulsive", "crossover", "body", "plane", "finite", "finite_crossover")
 # When a cube has a variable: always, or only with a grid axis or target kind.
-When = Literal["always", "plane_change", "thrust", "elliptical_target"]
+When = Literal["always", "plane_change", "thrust", "elliptical_target", "period_target"]
 
 VIS_VIVA = "vis-viva energy relation on patched conics (Curtis 2014, Ch. 2, 6, 8)"
 ROCKET = "ideal rocket equation (Tsiolkovsky), g0 = 9.80665 m s-2"
@@ -63,7 +63,14 @@ FINITE_MODEL = (
 _FREE = ("an orbit of the target's eccentricity e whose periapsis the mission may choose: r_p = 2 mu (1 - e) / "
          "(v_inf^2 (1 + e)), delta-v = v_inf sqrt((1 - e) / 2) (Curtis 2014, Ch. 8, optimal periapsis; for a "
          "circular target r = 2 mu / v_inf^2); NaN where that periapsis is below the lowest safe periapsis or "
-         "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target")
+         "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target. The "
+         "optimum at fixed eccentricity: for a target given by its period, this orbit has the target's shape but "
+         "another period (free_periapsis_period_delta_v holds the optimum at the target's period)")
+_FREE_PERIOD = ("an orbit of the target's period (semi-major axis a) whose periapsis the mission may choose: the "
+                "single capture burn sqrt(v_inf^2 + 2 mu / r) - sqrt(2 mu / r - mu / a) falls steadily as r falls, "
+                "so the optimum is at the lowest safe periapsis (derivation: sweep.physics.capture."
+                "free_periapsis_capture_at_period); NaN where that periapsis lies above a or the apoapsis 2 a - r "
+                "beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target")
 
 # What the apoapsis bound is a fraction of, by the config's [three_burn] apoapsis_bound_of
 _BOUND_OF = {
@@ -115,6 +122,7 @@ class Variable:
             "plane_change": config.plane_change is not None,
             "thrust": config.thrust is not None,
             "elliptical_target": config.target_apoapsis_altitude is not None or config.target_period is not None,
+            "period_target": config.target_period is not None,
         }[self.when]
 
 
@@ -175,11 +183,15 @@ _BODY = (
                                    "the fraction follows Shen and Tremaine 2008 (AJ 136), prograde orbits bound to "
                                    "about half the Hill radius"}),
     Variable("free_periapsis_altitude", ("body", "v_inf", "target_altitude"), "km",
-             "periapsis altitude of the orbit of the target's shape cheapest to capture into", "body",
-             attrs=_static(comment=_FREE)),
+             "periapsis altitude of the orbit of the target's eccentricity cheapest to capture into (optimum at fixed "
+             "eccentricity)", "body", attrs=_static(comment=_FREE)),
     Variable("free_periapsis_delta_v", ("body", "v_inf", "target_altitude"), "m s-1",
-             "single-burn delta-v into the orbit of the target's shape cheapest to capture into", "body",
-             attrs=_static(comment=_FREE)),
+             "single-burn delta-v into the orbit of the target's eccentricity cheapest to capture into (optimum at "
+             "fixed eccentricity)", "body", attrs=_static(comment=_FREE)),
+    Variable("free_periapsis_period_delta_v", ("body", "v_inf"), "m s-1",
+             "single-burn delta-v into the orbit of the target's period cheapest to capture into (optimum at fixed "
+             "period: at the lowest safe periapsis)", "body", when="period_target",
+             attrs=_static(comment=_FREE_PERIOD)),
     Variable("target_apoapsis_altitude", ("body", "target_altitude"), "km",
              "apoapsis altitude of the elliptical target orbit", "body", when="elliptical_target",
              attrs=_elliptical_target),

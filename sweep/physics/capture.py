@@ -42,6 +42,7 @@ from sweep.physics.conics import (
 __all__ = [
     "Maneuver",
     "free_periapsis_capture",
+    "free_periapsis_capture_at_period",
     "best_plane_change_split",
     "combined_burn",
     "best_intermediate_apoapsis",
@@ -122,6 +123,45 @@ def free_periapsis_capture(v_inf: ArrayLike, gm: ArrayLike, eccentricity: ArrayL
         radius = np.where(v_inf > 0, 2.0 * np.asarray(gm) * (1.0 - eccentricity)
                           / (np.where(v_inf > 0, v_inf, 1.0) ** 2 * (1.0 + eccentricity)), np.nan)
     return radius, v_inf * np.sqrt(0.5 * (1.0 - eccentricity))
+
+
+def free_periapsis_capture_at_period(
+    v_inf: ArrayLike, gm: ArrayLike, semi_major_axis: ArrayLike, lowest_periapsis: ArrayLike
+) -> np.ndarray:
+    r"""
+    The capture burn into an orbit of given period (semi-major axis) when the periapsis may be chosen.
+
+    Parameters
+    ----------
+    v_inf, gm : numeric
+        Arrival speed [m/s] and the body's gravitational parameter [m^3/s^2].
+    semi_major_axis : numeric
+        Semi-major axis of the orbit to capture into (Kepler's third law gives it from the period). [m]
+    lowest_periapsis : numeric
+        Lowest admissible periapsis radius. [m]
+
+    Returns
+    -------
+    delta_v : numeric
+        The least single capture burn, made at periapsis :math:`r = ` ``lowest_periapsis``:
+        :math:`\sqrt{v_\infty^2 + 2\mu/r} - \sqrt{2\mu/r - \mu/a}`; NaN where
+        :math:`r > a` (no orbit of that period has its periapsis so high). [m/s]
+
+    Notes
+    -----
+    With :math:`x = 1/r` the burn at periapsis is
+    :math:`f(x) = \sqrt{v_\infty^2 + 2\mu x} - \sqrt{2\mu x - \mu/a}` (vis-viva, [1]_ Ch. 2, 8), and
+    :math:`f'(x) = \mu / \sqrt{v_\infty^2 + 2\mu x} - \mu / \sqrt{2\mu x - \mu/a} < 0`, since
+    :math:`v_\infty^2 + 2\mu x > 2\mu x - \mu/a` for every bound orbit. So at fixed period the burn
+    falls steadily as the periapsis falls and the optimum is the lowest admissible periapsis, unlike
+    the optimum at fixed eccentricity (:func:`free_periapsis_capture`), which lies inside the range
+    and keeps the eccentricity, not the period, of the target (our derivation).
+    """
+    radius = np.asarray(lowest_periapsis, dtype=float)
+    semi_major_axis = np.asarray(semi_major_axis, dtype=float)
+    gm = np.asarray(gm, dtype=float)
+    on_orbit = np.sqrt(np.where(radius <= semi_major_axis, 2.0 * gm / radius - gm / semi_major_axis, np.nan))
+    return hyperbolic_periapsis_speed(v_inf, gm, radius) - on_orbit
 
 
 def _target_speed(gm, radius, target_radius, target_apoapsis):
