@@ -211,3 +211,57 @@ def test_free_periapsis_at_fixed_eccentricity_and_at_fixed_period():
     assert fixed_period < 1212.8 < 1471.1  # cheaper than both: a lower periapsis, the target's period
     assert "optimum at fixed eccentricity" in cube.free_periapsis_delta_v.attrs["long_name"]
     assert "optimum at fixed period" in cube.free_periapsis_period_delta_v.attrs["long_name"]
+
+
+# --- item 3: the safe periapsis clears the equator ----------------------------------------------------------------
+
+
+def test_every_safe_periapsis_clears_the_equator_by_the_height_its_basis_cites():
+    # For every catalog body: safe periapsis radius >= equatorial radius + hazard_height (the
+    # atmosphere, plume or terrain height its basis cites, stored as a number with its source in
+    # sweep/data/bodies.toml; those figures are from memory, as marked there).
+    from sweep.catalog import catalog
+
+    for name, body in catalog().items():
+        assert np.isfinite(body.hazard_height) and body.sources.get("hazard_height"), name
+        assert body.safe_periapsis_radius >= body.equatorial_radius + body.hazard_height, name
+        assert body.safe_periapsis_radius == pytest.approx(body.radius + body.safe_periapsis_altitude, rel=1e-15)
+
+
+@pytest.mark.parametrize(("name", "equatorial", "mean", "altitude"), [
+    # radii: the catalog's, from JPL's planet_phys_par table (IAU WGCCRE 2015), 1-bar level; the
+    # clearance, 2,000 km: ~1,000 km of atmosphere (the catalog's basis, from memory) plus margin.
+    ("jupiter", 71492.0, 69911.0, 3581.0),  # was 2,000 km above the mean radius: 419 km above the equator
+    ("saturn", 60268.0, 58232.0, 4036.0),  # was 2,000 km above the mean radius: 36 km below the equator
+])
+def test_the_giants_safe_periapsis_is_2000_km_above_the_equator(name, equatorial, mean, altitude):
+    from sweep.catalog import catalog
+
+    body = catalog()[name]
+    assert (body.equatorial_radius, body.radius) == (equatorial * 1e3, mean * 1e3)
+    assert body.safe_periapsis_clearance == pytest.approx(2000e3, abs=1e-6)  # km -> m rounding only
+    assert body.safe_periapsis_altitude == pytest.approx(altitude * 1e3, abs=1e-6)
+    assert body.safe_periapsis_radius - body.equatorial_radius - body.hazard_height == pytest.approx(1000e3)
+
+
+def test_the_cube_says_which_radius_each_altitude_is_measured_from():
+    # Saturn, target 3,000 km above the mean radius (964 km above the equatorial 1-bar level, inside
+    # the ~1,000 km atmosphere): now below the safe periapsis; 5,000 km is feasible.
+    cube = run(parse_config(_config('["saturn"]', "[3000.0, 5000.0]", "[4500.0]"), "s.toml"), workers=1)
+    assert float(cube.body_safe_periapsis_altitude[0]) == pytest.approx(4036.0)
+    assert float(cube.body_equatorial_radius[0]) == 60268.0
+    assert float(cube.body_safe_periapsis_clearance[0]) == pytest.approx(2000.0)
+    direct = cube.status.isel(body=0, strategy=DIRECT, v_inf=0, periapsis_altitude=0).values
+    assert list(direct) == [2, 0]  # 2: target_below_safe_altitude (sweep/model/statuses.py), 0: ok
+    for coordinate in ("target_altitude", "periapsis_altitude"):
+        assert cube[coordinate].attrs["comment"].startswith("above the body's mean radius (body_radius)")
+    assert "equatorial radius plus the clearance" in cube.body_safe_periapsis_altitude.attrs["comment"]
+
+
+def test_a_config_safe_altitude_stays_above_the_mean_radius():
+    # A config's safe_periapsis_altitude (km above the mean radius) replaces the catalog's clearance.
+    from sweep.catalog import resolve_body
+
+    saturn = resolve_body("saturn", {"saturn": {"safe_periapsis_altitude": 3000.0}}, origin="x.toml")
+    assert saturn.safe_periapsis_altitude == 3000e3
+    assert saturn.safe_periapsis_clearance == pytest.approx(3000e3 + 58232e3 - 60268e3)  # 964 km above the equator

@@ -252,6 +252,8 @@ def prepare(config: SweepConfig, workers: int | None = None, progress: bool = Fa
         out["body_gm"][index] = body.gm
         out["body_radius"][index] = body.radius / _KM
         out["body_safe_periapsis_altitude"][index] = body.safe_periapsis_altitude / _KM
+        out["body_equatorial_radius"][index] = body.equatorial_radius / _KM
+        out["body_safe_periapsis_clearance"][index] = body.safe_periapsis_clearance / _KM
         out["apoapsis_bound"][index] = plan.apoapsis_bound / _KM
         out["sphere_of_influence_radius"][index] = body.sphere_of_influence / _KM
         out["hill_radius"][index] = body.hill_radius / _KM

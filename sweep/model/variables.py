@@ -66,6 +66,10 @@ _FREE = ("an orbit of the target's eccentricity e whose periapsis the mission ma
          "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target. The "
          "optimum at fixed eccentricity: for a target given by its period, this orbit has the target's shape but "
          "another period (free_periapsis_period_delta_v holds the optimum at the target's period)")
+_SAFE = ("the safe periapsis radius is the equatorial radius plus the clearance (the surface a periapsis must clear "
+         "is the equator's, which on an oblate giant stands far above the mean radius); the same radius as an altitude "
+         "above the mean radius, the reference of every altitude of the cube: body_safe_periapsis_altitude = "
+         "body_equatorial_radius + body_safe_periapsis_clearance - body_radius")
 _FREE_PERIOD = ("an orbit of the target's period (semi-major axis a) whose periapsis the mission may choose: the "
                 "single capture burn sqrt(v_inf^2 + 2 mu / r) - sqrt(2 mu / r - mu / a) falls steadily as r falls, "
                 "so the optimum is at the lowest safe periapsis (derivation: sweep.physics.capture."
@@ -173,8 +177,13 @@ _IMPULSIVE = (
 )
 _BODY = (
     Variable("body_gm", ("body",), "m3 s-2", "gravitational parameter of the body", "body"),
-    Variable("body_radius", ("body",), "km", "mean radius of the body", "body"),
-    Variable("body_safe_periapsis_altitude", ("body",), "km", "lowest safe periapsis altitude of the body", "body"),
+    Variable("body_radius", ("body",), "km", "mean radius of the body", "body",
+             attrs=_static(comment="every altitude of the cube is measured from this radius")),
+    Variable("body_equatorial_radius", ("body",), "km", "equatorial radius of the body", "body"),
+    Variable("body_safe_periapsis_clearance", ("body",), "km",
+             "lowest safe periapsis height above the equatorial radius", "body", attrs=_static(comment=_SAFE)),
+    Variable("body_safe_periapsis_altitude", ("body",), "km", "lowest safe periapsis altitude of the body above "
+             "the mean radius", "body", attrs=_static(comment=_SAFE)),
     Variable("sphere_of_influence_radius", ("body",), "km", "Laplace sphere-of-influence radius, a (m/M)^(2/5)",
              "body"),
     Variable("hill_radius", ("body",), "km", "Hill radius, a (m/3M)^(1/3)", "body"),
