@@ -120,10 +120,12 @@ class Spacecraft(_Model):
 class ThreeBurn(_Model):
     """Bounds on the three-burn intermediate apoapsis."""
 
-    # Fraction of min(Hill radius, sphere of influence). Shen and Tremaine (2008, AJ 136;
-    # arXiv:0806.2882) find prograde orbits stay bound out to about half the Hill radius;
-    # applied here to the smaller of the two radii, which keeps it conservative.
+    # Fraction of the radius named by apoapsis_bound_of. Shen and Tremaine (2008, AJ 136;
+    # arXiv:0806.2882) find prograde orbits stay bound out to about half the Hill radius; by
+    # default applied to the smaller of the Hill radius and the sphere of influence, which keeps
+    # it conservative (README, "The three-burn apoapsis bound").
     apoapsis_fraction: Annotated[float, Field(gt=0, le=1)] = 0.5
+    apoapsis_bound_of: Literal["smaller", "hill", "sphere_of_influence"] = "smaller"
     max_time_to_orbit: Annotated[float, Field(gt=0, le=1.0e6)] | None = None  # days (1e6: some 2,700 years)
 
 
@@ -199,6 +201,7 @@ class SweepConfig:
     path: str  # where it was read from
     target_apoapsis_altitude: float | None = None  # km: elliptical target with this apoapsis ...
     target_period: float | None = None  # s: ... or with this period; neither: circular targets
+    apoapsis_bound_of: str = "smaller"  # the radius apoapsis_fraction applies to: "smaller", "hill", ...
 
     @property
     def shape(self) -> tuple[int, ...]:
@@ -381,6 +384,7 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         specific_impulse=model.spacecraft.specific_impulse,
         arrival_mass=model.spacecraft.arrival_mass,
         apoapsis_fraction=model.three_burn.apoapsis_fraction,
+        apoapsis_bound_of=model.three_burn.apoapsis_bound_of,
         max_time_to_orbit=None
         if model.three_burn.max_time_to_orbit is None
         else model.three_burn.max_time_to_orbit * _DAY,

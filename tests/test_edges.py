@@ -61,8 +61,9 @@ def test_periapsis_exactly_at_the_lowest_safe_altitude_is_feasible():
     config, cube = _sweep("""bodies = ["mars"]
 v_inf = [3.0]
 target_altitude = [400.0]
-periapsis_altitude = [199.999999, 200.0]""")
-    assert config.bodies[0].safe_periapsis_altitude == 200e3  # the catalog's Mars value
+periapsis_altitude = [206.689999, 206.69]""")
+    # the catalog's Mars clearance, 200 km above the equatorial radius 3396.19 km, from the mean radius 3389.5 km
+    assert config.bodies[0].safe_periapsis_altitude == 206.69e3
     two_burn = cube.status.isel(strategy=1, body=0, v_inf=0, target_altitude=0).values
     assert list(two_burn) == [CODE["periapsis_below_safe_altitude"], CODE["ok"]]
     assert np.isfinite(cube.delta_v.isel(strategy=1, body=0, v_inf=0, target_altitude=0, periapsis_altitude=1))

@@ -76,6 +76,8 @@ BAD_INPUTS = [
      r"\[bodies\.enceladus\] semi_major_axis: the orbit must clear its parent 'saturn'.*\(got 1000\.0\)"),
     ("max_time_to_orbit = 20.0", "max_time_to_orbit = 20.0\n[bodies.enceladus]\ngm = -1.0",
      r"bodies\.enceladus\.gm: Input should be greater than 0 \(got -1\.0\)"),
+    ("max_time_to_orbit = 20.0", 'max_time_to_orbit = 20.0\napoapsis_bound_of = "roche"',
+     r"three_burn\.apoapsis_bound_of: Input should be 'smaller', 'hill' or 'sphere_of_influence' \(got 'roche'\)"),
 ]
 
 

@@ -48,8 +48,8 @@ values = st.recursive(scalars, lambda inner: st.one_of(st.lists(inner, max_size=
 KEYS = ["name", "description", "grid", "spacecraft", "three_burn", "crossover", "target_orbit", "finite_burn",
         "bodies", "bodies", "v_inf", "start", "stop", "num", "spacing", "target_altitude", "periapsis_altitude",
         "thrust", "thrust_to_weight", "plane_change", "specific_impulse", "arrival_mass", "apoapsis_fraction",
-        "max_time_to_orbit", "v_inf_min", "v_inf_max", "apoapsis_altitude", "period", "steering", "gm",
-        "mean_radius", "safe_periapsis_altitude", "parent", "semi_major_axis", "hohmann_from", "margin", "mars"]
+        "apoapsis_bound_of", "max_time_to_orbit", "v_inf_min", "v_inf_max", "apoapsis_altitude", "period", "steering",
+        "gm", "mean_radius", "safe_periapsis_altitude", "parent", "semi_major_axis", "hohmann_from", "margin", "mars"]
 
 
 def _check(text: str) -> None:

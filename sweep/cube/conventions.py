@@ -54,6 +54,10 @@ def _attributes(variable: Variable, config: SweepConfig, names: list[str]) -> di
     return _attrs(variable.units, variable.long_name, **variable.attrs(config))
 
 
+_ALTITUDES = ("above the body's mean radius (body_radius); the lowest safe periapsis is a clearance above the "
+              "equatorial radius, given as an altitude above the mean radius in body_safe_periapsis_altitude")
+
+
 def _coordinates(config: SweepConfig, burns: int) -> dict:
     """The cube's coordinates: the swept axes and the body and strategy labels."""
     elliptical = config.target_apoapsis_altitude is not None or config.target_period is not None
@@ -65,9 +69,9 @@ def _coordinates(config: SweepConfig, burns: int) -> dict:
                                                 **({"comment": config.v_inf_note} if config.v_inf_note else {}))),
         "target_altitude": ("target_altitude", config.target_altitude, _attrs(
             "km", "periapsis altitude of the elliptical target orbit" if elliptical
-            else "altitude of the circular target orbit above the mean radius")),
-        "periapsis_altitude": ("periapsis_altitude", config.periapsis_altitude,
-                               _attrs("km", f"altitude of the approach periapsis used by {divers}")),
+            else "altitude of the circular target orbit above the mean radius", comment=_ALTITUDES)),
+        "periapsis_altitude": ("periapsis_altitude", config.periapsis_altitude, _attrs(
+            "km", f"altitude of the approach periapsis used by {divers}", comment=_ALTITUDES)),
         "burn": ("burn", np.arange(1, burns + 1, dtype=np.int32), _attrs("1", "burn number in order of execution")),
         "body_name": ("body", np.array([b.name for b in config.bodies], dtype=object),
                       {"long_name": "body name (lower case)"}),

@@ -28,8 +28,10 @@ from sweep.model.statuses import status_code
 from sweep.model.strategies import DIRECT, STRATEGIES, Geometry, challengers, pick_best
 from sweep.physics.capture import (
     best_intermediate_apoapsis,
+    equal_cost_sensitivity,
     equal_cost_v_inf,
     free_periapsis_capture,
+    free_periapsis_capture_at_period,
     time_limited_apoapsis,
 )
 from sweep.physics.conics import hyperbolic_periapsis_speed, semi_major_axis_from_period
@@ -42,6 +44,10 @@ logger = logging.getLogger(__name__)
 
 _KM = 1.0e3  # m per km
 STREAM_CHUNK_POINTS = 1 << 19  # grid points per streamed chunk: about 90 MB of results each
+# Relative tolerance of the time cap: times are sums of half periods of radii that root finders
+# return, exact to ~1e-15 relative; a time equal to the cap to rounding must not flip the status
+# (1e-9 of a 3-day cap is 0.26 ms, far below any clock a mission plans by).
+_TIME_RTOL = 1.0e-9
 
 
 @dataclass(frozen=True)
@@ -52,7 +58,8 @@ class BodyPlan:
     status: np.ndarray  # int8 (strategy, target, periapsis)
     times: np.ndarray  # s (strategy, target, periapsis), NaN where infeasible
     apoapsis_bound: float  # m
-    crossover: dict[str, np.ndarray]  # m/s (target, periapsis) by challenger crossover variable
+    # m/s (target, periapsis) by challenger crossover variable; and by its "_sensitivity", m/s per m/s
+    crossover: dict[str, np.ndarray]
 
 
 def _status_codes(strategy, body, target_altitude, periapsis_altitude, target_radius,
@@ -92,7 +99,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
     periapsis_radius = body.radius + periapsis_altitude
     target_apoapsis = target_apoapsis_radius(body, config, target_radius)
     far = target_radius if target_apoapsis is None else target_apoapsis
-    bound = config.apoapsis_fraction * min(body.sphere_of_influence, body.hill_radius)
+    bound = config.apoapsis_fraction * body.bound_radius(config.apoapsis_bound_of)
     upper = np.full(np.broadcast_shapes(target_radius.shape, periapsis_radius.shape), bound)
     if config.max_time_to_orbit is not None:
         # NaN where even the smallest apoapsis is too slow: fmin keeps the bound, and the
@@ -108,7 +115,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
         maneuver = strategy.kernel(0.0, geometry)
         time = np.broadcast_to(maneuver.time, upper.shape)
         cap = np.inf if config.max_time_to_orbit is None else config.max_time_to_orbit
-        exceeded = time > cap
+        exceeded = time > cap * (1.0 + _TIME_RTOL)
         code = _status_codes(strategy, body, target_altitude, periapsis_altitude, far,
                              periapsis_radius, bound, exceeded)
         status.append(code)
@@ -124,6 +131,8 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
                                  constants[DIRECT] - constants[index])
         usable = (status[DIRECT] == 0) & (status[index] == 0) & (speed >= low) & (speed <= high)
         crossover[strategy.crossover_variable] = np.where(usable, speed, np.nan)
+        sensitivity = equal_cost_sensitivity(body.gm, strategy.first_burn_radius(geometry), target_radius, speed)
+        crossover[f"{strategy.crossover_variable}_sensitivity"] = np.where(usable, sensitivity, np.nan)
     return BodyPlan(geometry, status, np.stack(times), bound, crossover)
 
 
@@ -239,10 +248,12 @@ def prepare(config: SweepConfig, workers: int | None = None, progress: bool = Fa
     plans = threads(delayed(plan_body)(body, config) for body in config.bodies)
     for index, (body, plan) in enumerate(zip(config.bodies, plans, strict=True)):
         for name, speed in plan.crossover.items():
-            out[name][index] = speed / _KM
+            out[name][index] = speed / _KM  # sensitivities: to km/s per m/s
         out["body_gm"][index] = body.gm
         out["body_radius"][index] = body.radius / _KM
         out["body_safe_periapsis_altitude"][index] = body.safe_periapsis_altitude / _KM
+        out["body_equatorial_radius"][index] = body.equatorial_radius / _KM
+        out["body_safe_periapsis_clearance"][index] = body.safe_periapsis_clearance / _KM
         out["apoapsis_bound"][index] = plan.apoapsis_bound / _KM
         out["sphere_of_influence_radius"][index] = body.sphere_of_influence / _KM
         out["hill_radius"][index] = body.hill_radius / _KM
@@ -256,6 +267,12 @@ def prepare(config: SweepConfig, workers: int | None = None, progress: bool = Fa
         usable = (radius >= body.radius + body.safe_periapsis_altitude) & (apoapsis <= plan.apoapsis_bound)
         out["free_periapsis_altitude"][index] = np.where(usable, (radius - body.radius) / _KM, np.nan)
         out["free_periapsis_delta_v"][index] = np.where(usable, burn, np.nan)
+        if "free_periapsis_period_delta_v" in out:  # the same, at the target's period instead of its shape
+            lowest = body.radius + body.safe_periapsis_altitude
+            axis = semi_major_axis_from_period(body.gm, config.target_period)
+            burn = free_periapsis_capture_at_period(config.v_inf * _KM, body.gm, axis, lowest)
+            usable = 2.0 * axis - lowest <= plan.apoapsis_bound
+            out["free_periapsis_period_delta_v"][index] = np.where(usable, burn, np.nan)
     if config.thrust is not None:
         out.update(evaluate_finite(config, plans, workers, progress, scheduler=scheduler, checkpoint=checkpoint))
     return plans, out

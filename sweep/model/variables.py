@@ -48,7 +48,7 @@ _PLANE = (*DIMENSIONS, "plane_change")
 Stage = Literal["body", "crossover", "impulsive", "plane", "finite", "finite_crossover"]
 STAGES: tuple[str, ...] = ("impulsive", "crossover", "body", "plane", "finite", "finite_crossover")
 # When a cube has a variable: always, or only with a grid axis or target kind.
-When = Literal["always", "plane_change", "thrust", "elliptical_target"]
+When = Literal["always", "plane_change", "thrust", "elliptical_target", "period_target"]
 
 VIS_VIVA = "vis-viva energy relation on patched conics (Curtis 2014, Ch. 2, 6, 8)"
 ROCKET = "ideal rocket equation (Tsiolkovsky), g0 = 9.80665 m s-2"
@@ -63,7 +63,26 @@ FINITE_MODEL = (
 _FREE = ("an orbit of the target's eccentricity e whose periapsis the mission may choose: r_p = 2 mu (1 - e) / "
          "(v_inf^2 (1 + e)), delta-v = v_inf sqrt((1 - e) / 2) (Curtis 2014, Ch. 8, optimal periapsis; for a "
          "circular target r = 2 mu / v_inf^2); NaN where that periapsis is below the lowest safe periapsis or "
-         "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target")
+         "its apoapsis beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target. The "
+         "optimum at fixed eccentricity: for a target given by its period, this orbit has the target's shape but "
+         "another period (free_periapsis_period_delta_v holds the optimum at the target's period)")
+_SAFE = ("the safe periapsis radius is the equatorial radius plus the clearance (the surface a periapsis must clear "
+         "is the equator's, which on an oblate giant stands far above the mean radius); the same radius as an altitude "
+         "above the mean radius, the reference of every altitude of the cube: body_safe_periapsis_altitude = "
+         "body_equatorial_radius + body_safe_periapsis_clearance - body_radius")
+_FREE_PERIOD = ("an orbit of the target's period (semi-major axis a) whose periapsis the mission may choose: the "
+                "single capture burn sqrt(v_inf^2 + 2 mu / r) - sqrt(2 mu / r - mu / a) falls steadily as r falls, "
+                "so the optimum is at the lowest safe periapsis (derivation: sweep.physics.capture."
+                "free_periapsis_capture_at_period); NaN where that periapsis lies above a or the apoapsis 2 a - r "
+                "beyond the apoapsis bound; not a strategy of the trade, since its orbit is not the target")
+
+# What the apoapsis bound is a fraction of, by the config's [three_burn] apoapsis_bound_of
+_BOUND_OF = {
+    "smaller": "min(Hill radius, sphere of influence)",
+    "hill": "Hill radius (config: apoapsis_bound_of = \"hill\"; the sphere of influence ignored)",
+    "sphere_of_influence": "sphere-of-influence radius (config: apoapsis_bound_of = \"sphere_of_influence\"; the "
+                           "Hill radius ignored)",
+}
 
 
 def _none(config) -> dict[str, Any]:
@@ -107,6 +126,7 @@ class Variable:
             "plane_change": config.plane_change is not None,
             "thrust": config.thrust is not None,
             "elliptical_target": config.target_apoapsis_altitude is not None or config.target_period is not None,
+            "period_target": config.target_period is not None,
         }[self.when]
 
 
@@ -157,21 +177,30 @@ _IMPULSIVE = (
 )
 _BODY = (
     Variable("body_gm", ("body",), "m3 s-2", "gravitational parameter of the body", "body"),
-    Variable("body_radius", ("body",), "km", "mean radius of the body", "body"),
-    Variable("body_safe_periapsis_altitude", ("body",), "km", "lowest safe periapsis altitude of the body", "body"),
+    Variable("body_radius", ("body",), "km", "mean radius of the body", "body",
+             attrs=_static(comment="every altitude of the cube is measured from this radius")),
+    Variable("body_equatorial_radius", ("body",), "km", "equatorial radius of the body", "body"),
+    Variable("body_safe_periapsis_clearance", ("body",), "km",
+             "lowest safe periapsis height above the equatorial radius", "body", attrs=_static(comment=_SAFE)),
+    Variable("body_safe_periapsis_altitude", ("body",), "km", "lowest safe periapsis altitude of the body above "
+             "the mean radius", "body", attrs=_static(comment=_SAFE)),
     Variable("sphere_of_influence_radius", ("body",), "km", "Laplace sphere-of-influence radius, a (m/M)^(2/5)",
              "body"),
     Variable("hill_radius", ("body",), "km", "Hill radius, a (m/3M)^(1/3)", "body"),
     Variable("apoapsis_bound", ("body",), "km", "largest admissible apoapsis radius", "body",
-             attrs=lambda config: {"comment": f"{config.apoapsis_fraction} x min(Hill radius, sphere of influence); "
+             attrs=lambda config: {"comment": f"{config.apoapsis_fraction} x {_BOUND_OF[config.apoapsis_bound_of]}; "
                                    "the fraction follows Shen and Tremaine 2008 (AJ 136), prograde orbits bound to "
                                    "about half the Hill radius"}),
     Variable("free_periapsis_altitude", ("body", "v_inf", "target_altitude"), "km",
-             "periapsis altitude of the orbit of the target's shape cheapest to capture into", "body",
-             attrs=_static(comment=_FREE)),
+             "periapsis altitude of the orbit of the target's eccentricity cheapest to capture into (optimum at fixed "
+             "eccentricity)", "body", attrs=_static(comment=_FREE)),
     Variable("free_periapsis_delta_v", ("body", "v_inf", "target_altitude"), "m s-1",
-             "single-burn delta-v into the orbit of the target's shape cheapest to capture into", "body",
-             attrs=_static(comment=_FREE)),
+             "single-burn delta-v into the orbit of the target's eccentricity cheapest to capture into (optimum at "
+             "fixed eccentricity)", "body", attrs=_static(comment=_FREE)),
+    Variable("free_periapsis_period_delta_v", ("body", "v_inf"), "m s-1",
+             "single-burn delta-v into the orbit of the target's period cheapest to capture into (optimum at fixed "
+             "period: at the lowest safe periapsis)", "body", when="period_target",
+             attrs=_static(comment=_FREE_PERIOD)),
     Variable("target_apoapsis_altitude", ("body", "target_altitude"), "km",
              "apoapsis altitude of the elliptical target orbit", "body", when="elliptical_target",
              attrs=_elliptical_target),
@@ -231,6 +260,16 @@ def _crossover(strategy, reference: str) -> Variable:
                     attrs=attrs)
 
 
+def _crossover_sensitivity(strategy, reference: str) -> Variable:
+    comment = (f"1 / |d(delta-v of {strategy.name} - delta-v of {reference}) / d v_inf| at the crossover, closed form "
+               "(sweep.physics.capture.equal_cost_sensitivity; each cost is sqrt(v_inf^2 + 2 mu / r_1) + a constant): "
+               "the km/s by which the crossover moves when either cost changes by 1 m/s (a model error, a margin); "
+               "large where both first burns grow alike with v_inf. NaN where the crossover is NaN")
+    return Variable(f"{strategy.crossover_variable}_sensitivity", ("body", "target_altitude", "periapsis_altitude"),
+                    "km m-1", f"shift of the {strategy.name} crossover arrival speed per unit change of its cost "
+                    f"difference with {reference} (km/s per m/s)", "crossover", attrs=_static(comment=comment))
+
+
 def _finite_crossover(strategy, reference: str) -> Variable:
     def attrs(config) -> dict[str, Any]:
         v_min, v_max = float(config.v_inf.min()), float(config.v_inf.max())
@@ -254,7 +293,7 @@ def cube_variables(strategies: Iterable, reference: str = "direct", config=None)
     challengers = [s for s in strategies if s.name != reference]
     found = [
         *_IMPULSIVE, *(v for v in own if v.stage == "impulsive"),
-        *(_crossover(s, reference) for s in challengers),
+        *(v for s in challengers for v in (_crossover(s, reference), _crossover_sensitivity(s, reference))),
         *_BODY,
         _plane_total(strategies), *(v for v in own if v.stage == "plane"), *_PLANE_RESULTS,
         *_FINITE_VARIABLES, *(_finite_crossover(s, reference) for s in challengers),

@@ -42,10 +42,12 @@ from sweep.physics.conics import (
 __all__ = [
     "Maneuver",
     "free_periapsis_capture",
+    "free_periapsis_capture_at_period",
     "best_plane_change_split",
     "combined_burn",
     "best_intermediate_apoapsis",
     "direct_capture",
+    "equal_cost_sensitivity",
     "equal_cost_v_inf",
     "three_burn_capture",
     "time_limited_apoapsis",
@@ -121,6 +123,45 @@ def free_periapsis_capture(v_inf: ArrayLike, gm: ArrayLike, eccentricity: ArrayL
         radius = np.where(v_inf > 0, 2.0 * np.asarray(gm) * (1.0 - eccentricity)
                           / (np.where(v_inf > 0, v_inf, 1.0) ** 2 * (1.0 + eccentricity)), np.nan)
     return radius, v_inf * np.sqrt(0.5 * (1.0 - eccentricity))
+
+
+def free_periapsis_capture_at_period(
+    v_inf: ArrayLike, gm: ArrayLike, semi_major_axis: ArrayLike, lowest_periapsis: ArrayLike
+) -> np.ndarray:
+    r"""
+    The capture burn into an orbit of given period (semi-major axis) when the periapsis may be chosen.
+
+    Parameters
+    ----------
+    v_inf, gm : numeric
+        Arrival speed [m/s] and the body's gravitational parameter [m^3/s^2].
+    semi_major_axis : numeric
+        Semi-major axis of the orbit to capture into (Kepler's third law gives it from the period). [m]
+    lowest_periapsis : numeric
+        Lowest admissible periapsis radius. [m]
+
+    Returns
+    -------
+    delta_v : numeric
+        The least single capture burn, made at periapsis :math:`r = ` ``lowest_periapsis``:
+        :math:`\sqrt{v_\infty^2 + 2\mu/r} - \sqrt{2\mu/r - \mu/a}`; NaN where
+        :math:`r > a` (no orbit of that period has its periapsis so high). [m/s]
+
+    Notes
+    -----
+    With :math:`x = 1/r` the burn at periapsis is
+    :math:`f(x) = \sqrt{v_\infty^2 + 2\mu x} - \sqrt{2\mu x - \mu/a}` (vis-viva, [1]_ Ch. 2, 8), and
+    :math:`f'(x) = \mu / \sqrt{v_\infty^2 + 2\mu x} - \mu / \sqrt{2\mu x - \mu/a} < 0`, since
+    :math:`v_\infty^2 + 2\mu x > 2\mu x - \mu/a` for every bound orbit. So at fixed period the burn
+    falls steadily as the periapsis falls and the optimum is the lowest admissible periapsis, unlike
+    the optimum at fixed eccentricity (:func:`free_periapsis_capture`), which lies inside the range
+    and keeps the eccentricity, not the period, of the target (our derivation).
+    """
+    radius = np.asarray(lowest_periapsis, dtype=float)
+    semi_major_axis = np.asarray(semi_major_axis, dtype=float)
+    gm = np.asarray(gm, dtype=float)
+    on_orbit = np.sqrt(np.where(radius <= semi_major_axis, 2.0 * gm / radius - gm / semi_major_axis, np.nan))
+    return hyperbolic_periapsis_speed(v_inf, gm, radius) - on_orbit
 
 
 def _target_speed(gm, radius, target_radius, target_apoapsis):
@@ -365,8 +406,10 @@ def _scan_and_refine(cost, lower, upper, forward, inverse):
     grid = np.indices(shape, sparse=True)
     low_u, high_u = forward(lower)[..., None], forward(upper)[..., None]
     u = low_u + (high_u - low_u) * np.linspace(0.0, 1.0, _SCAN_POINTS)
-    candidates = inverse(u)
-    candidates[..., 0], candidates[..., -1] = lower, upper  # the ends exactly, not via inverse(forward)
+    # inside the ends, which come exactly, not via inverse(forward): that may round one ulp outside
+    # them (all candidates of a zero-width interval, say)
+    candidates = np.clip(inverse(u), lower[..., None], upper[..., None])
+    candidates[..., 0], candidates[..., -1] = lower, upper
     cost_scan = cost(candidates, tuple(g[..., None] for g in grid))
     best = np.argmin(np.where(np.isnan(cost_scan), np.inf, cost_scan), axis=-1)[..., None]
     scan_best = np.take_along_axis(candidates, best, axis=-1)[..., 0]
@@ -390,7 +433,7 @@ def _scan_and_refine(cost, lower, upper, forward, inverse):
             np.where(keep_left, moved_cost, cost_right),
             np.where(keep_left, cost_left, moved_cost),
         )
-    refined = inverse(0.5 * (left + right))
+    refined = np.clip(inverse(0.5 * (left + right)), lower, upper)
     refined_cost = cost(refined, grid)
     chosen = np.where(refined_cost < scan_cost, refined, scan_best)
     return np.where(np.isnan(upper) | np.isnan(scan_cost), np.nan, chosen)
@@ -460,7 +503,8 @@ def time_limited_apoapsis(
     The time is a sum of two half periods, each rising with the apoapsis (Kepler's third
     law, [1]_ Ch. 2), so bisection on log radius between the smallest apoapsis and
     :math:`2 (\mu (t_{max}/2\pi)^2)^{1/3}` (where each half period alone reaches
-    :math:`t_{max}/2`) brackets the single root.
+    :math:`t_{max}/2`) brackets the single root. Where only the smallest apoapsis fits, it is
+    returned exactly (the degenerate three-burn sequence, identical to the two-burn one).
     """
     far = target_radius if target_apoapsis is None else target_apoapsis
     gm, periapsis_radius, target_radius, max_time, far = np.broadcast_arrays(
@@ -478,7 +522,11 @@ def time_limited_apoapsis(
         fits = time_of(np.exp(middle)) <= max_time
         low = np.where(fits, middle, low)
         high = np.where(fits, high, middle)
-    return np.where(time_of(lower) <= max_time, np.exp(low), np.nan)
+    # Where no larger apoapsis fits, the answer is the smallest one itself, returned exactly:
+    # exp(log(r)) can come back one ulp above r, and an intermediate ellipse one ulp away from
+    # the target circle costs a whole extra half period in the time model (a circle costs none).
+    limit = np.where(low == np.log(lower), lower, np.exp(low))
+    return np.where(time_of(lower) <= max_time, limit, np.nan)
 
 
 def equal_cost_v_inf(
@@ -522,3 +570,40 @@ def equal_cost_v_inf(
         square = first_speed**2 - escape_first
     valid = (offset != 0) & (total > 0) & (first_speed >= 0) & (second_speed >= 0) & (square >= 0)
     return np.where(valid, np.sqrt(np.where(valid, square, 0.0)), np.nan)
+
+
+def equal_cost_sensitivity(
+    gm: ArrayLike, first_radius: ArrayLike, second_radius: ArrayLike, v_inf: ArrayLike
+) -> np.ndarray:
+    r"""
+    How far the equal-cost speed moves per unit change of the cost offset: the root's condition.
+
+    Parameters
+    ----------
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    first_radius, second_radius : numeric
+        Radii of the first burn of sequence 1 and of sequence 2, as in :func:`equal_cost_v_inf`. [m]
+    v_inf : numeric
+        The equal-cost speed (a root from :func:`equal_cost_v_inf`). [m/s]
+
+    Returns
+    -------
+    sensitivity : numeric
+        :math:`|dv/dK| = 1 / |dD/dv|` at the root, in m/s of arrival speed per m/s of cost
+        offset; inf at :math:`v = 0` or equal radii, NaN where ``v_inf`` is NaN. [1]
+
+    Notes
+    -----
+    The cost difference is :math:`D(v) = \sqrt{v^2 + A} - \sqrt{v^2 + B} - K` with
+    :math:`A = 2\mu/r_1`, :math:`B = 2\mu/r_2` (:func:`equal_cost_v_inf`), so
+    :math:`dD/dv = v (1/\sqrt{v^2 + A} - 1/\sqrt{v^2 + B})`, and by the implicit function
+    theorem a change :math:`\delta K` moves the root by :math:`\delta K / (dD/dv)`. Both
+    square roots are nearly equal where :math:`v^2` dwarfs :math:`A` and :math:`B`, so the
+    derivative is small and the root ill-conditioned there.
+    """
+    v = np.asarray(v_inf, dtype=float)
+    first = np.sqrt(v**2 + 2.0 * np.asarray(gm) / np.asarray(first_radius, dtype=float))
+    second = np.sqrt(v**2 + 2.0 * np.asarray(gm) / np.asarray(second_radius, dtype=float))
+    with np.errstate(divide="ignore"):
+        return 1.0 / np.abs(v * (1.0 / first - 1.0 / second))
