@@ -532,9 +532,14 @@ def best_three_burn_turn(
     upper = np.maximum(upper_radius, lower)
     low_u, high_u = np.log(lower), np.log(upper)
 
+
+    def radius_of(log_radius):
+        # the ends exactly (the plan's apoapsis is often one) and never beyond them by a rounding of exp(log(.))
+        return np.where(log_radius <= low_u, lower,
+                        np.where(log_radius >= high_u, upper, np.clip(np.exp(log_radius), lower, upper)))
+
     def terms(log_radius):
-        # the ends exactly, not via exp(log(.)): the plan's apoapsis is often one of them
-        radius = np.where(log_radius <= low_u, lower, np.where(log_radius >= high_u, upper, np.exp(log_radius)))
+        radius = radius_of(log_radius)
         pairs = _three_burn_speeds(v_inf, gm, periapsis_radius, target_radius, radius,
                                    None if target_apoapsis is None else far)
         return [((after - before) ** 2, 4.0 * before * after) for before, after in pairs]
@@ -572,7 +577,7 @@ def best_three_burn_turn(
     plan = [np.log(np.clip(start, lower, upper)), zero, zero]
     best, best_cost = _keep_cheaper(best, best_cost, plan, cost(terms(plan[0]), zero, zero))
     u, first, third = best
-    radius = np.where(u <= low_u, lower, np.where(u >= high_u, upper, np.exp(u)))
+    radius = radius_of(u)
     invalid = np.isnan(upper) | np.isnan(best_cost)
     return tuple(np.where(invalid, np.nan, x) for x in (radius, first, third))
 
@@ -606,7 +611,7 @@ def _scan_split(terms, step):
                 total = tables[0][first] + tables[2][third]
                 total += tables[1][count - first - third]
             if best_cost is None:
-                best_cost, best_first[...], best_third[...] = total, first, third
+                best_cost, best_first[...], best_third[...] = np.array(total, dtype=float), first, third
                 continue
             cheaper = total < best_cost
             np.copyto(best_cost, total, where=cheaper)
