@@ -205,9 +205,9 @@ STRATEGIES: list[Strategy] = [
                           (g.target_radius, g.target_far)],
         turn=_three_burn_turn,
         turn_how="split over its three burns as cheapest, jointly with an apoapsis chosen anew for the turn "
-        "within the coplanar bound and time cap (scan, then golden section): mostly at apoapsis, part with the "
-        "first (periapsis) and third (target) burns where the speed changes there make a small turn nearly free, "
-        "and all with the first burn where the apoapsis is held low",
+        "within the coplanar bound and time cap (scan, then golden section): mostly at apoapsis, a part with the "
+        "first (periapsis) and third (target) burns, whose large speed changes absorb a small turn almost free, "
+        "and most or all of it with the first burn where the apoapsis is held low",
         variables=(Variable("intermediate_apoapsis_altitude", DIMENSIONS, "km", "three_burn intermediate apoapsis "
                             "altitude minimising total delta-v within the bound", "impulsive",
                             attrs=lambda config: {"comment": "NaN where three_burn is infeasible"}),),
