@@ -59,6 +59,7 @@ _TURN_SCAN_APOAPSES = 5  # apoapses on the joint scan of a turning three-burn se
 _TURN_SCAN_SPLITS = 20  # the turn in 20ths on that scan: 231 splits over the three burns
 _TURN_ROUNDS = 2  # rounds of golden-section search after it, brackets halved each round
 _TURN_GOLDEN_STEPS = 12  # steps of each: the bracket shrinks by 0.618**12 ~ 3e-3
+_TURN_BLOCK = 1 << 14  # points searched together: its ~70 temporaries fill ~9 MB
 _BISECTION_STEPS = 64  # halvings of a log-bracket: far below float64 resolution of radius
 
 
@@ -524,14 +525,28 @@ def best_three_burn_turn(
     """
     far = target_radius if target_apoapsis is None else target_apoapsis
     start = upper_radius if apoapsis_radius is None else apoapsis_radius
-    arrays = np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in
-                                   (v_inf, gm, periapsis_radius, target_radius, upper_radius, plane_change, far,
-                                    start)))
-    v_inf, gm, periapsis_radius, target_radius, upper_radius, plane_change, far, start = arrays
+    inputs = [np.asarray(x, dtype=float) for x in
+              (v_inf, gm, periapsis_radius, target_radius, upper_radius, plane_change, far, start)]
+    shape = np.broadcast_shapes(*(x.shape for x in inputs))
+    arrays = np.broadcast_arrays(*(np.atleast_1d(x) for x in inputs))
+    size = arrays[0].size
+    found = np.empty((3, size))
+    # Blocks of points, gathered from the broadcast inputs: the search holds some 70 arrays of a
+    # block at once (the scan's tables), so memory stays bounded whatever the chunk, and a block
+    # stays in cache.
+    for begin in range(0, size, _TURN_BLOCK):
+        index = np.unravel_index(np.arange(begin, min(begin + _TURN_BLOCK, size)), arrays[0].shape)
+        found[:, begin:begin + _TURN_BLOCK] = _three_burn_turn_block(*(x[index] for x in arrays),
+                                                                     elliptical=target_apoapsis is not None)
+    return tuple(x.reshape(shape) for x in found)
+
+
+def _three_burn_turn_block(v_inf, gm, periapsis_radius, target_radius, upper_radius, plane_change, far, start,
+                           elliptical):
+    """:func:`best_three_burn_turn` on 1-D arrays of equal length: (apoapsis, first, third) stacked."""
     lower = np.maximum(periapsis_radius, far)
     upper = np.maximum(upper_radius, lower)
     low_u, high_u = np.log(lower), np.log(upper)
-
 
     def radius_of(log_radius):
         # the ends exactly (the plan's apoapsis is often one) and never beyond them by a rounding of exp(log(.))
@@ -540,8 +555,7 @@ def best_three_burn_turn(
 
     def terms(log_radius):
         radius = radius_of(log_radius)
-        pairs = _three_burn_speeds(v_inf, gm, periapsis_radius, target_radius, radius,
-                                   None if target_apoapsis is None else far)
+        pairs = _three_burn_speeds(v_inf, gm, periapsis_radius, target_radius, radius, far if elliptical else None)
         return [((after - before) ** 2, 4.0 * before * after) for before, after in pairs]
 
     def cost(burn_terms, first, third):
@@ -579,7 +593,7 @@ def best_three_burn_turn(
     u, first, third = best
     radius = radius_of(u)
     invalid = np.isnan(upper) | np.isnan(best_cost)
-    return tuple(np.where(invalid, np.nan, x) for x in (radius, first, third))
+    return np.where(invalid, np.nan, np.stack([radius, first, third]))
 
 
 def _burn_cost(terms, turn):
@@ -611,7 +625,7 @@ def _scan_split(terms, step):
                 total = tables[0][first] + tables[2][third]
                 total += tables[1][count - first - third]
             if best_cost is None:
-                best_cost, best_first[...], best_third[...] = np.array(total, dtype=float), first, third
+                best_cost, best_first[...], best_third[...] = total, first, third
                 continue
             cheaper = total < best_cost
             np.copyto(best_cost, total, where=cheaper)

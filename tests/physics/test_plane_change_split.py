@@ -176,3 +176,17 @@ def test_turning_burns_are_velocity_vector_differences(name, periapsis_altitude,
     for k, ((before, after), outbound) in enumerate(zip(speeds, (True, False, True), strict=True)):
         expected = np.linalg.norm(_velocity(after, planes[k + 1], outbound) - _velocity(before, planes[k], outbound))
         assert float(burns[k]) == pytest.approx(expected, rel=1e-12, abs=1e-9)  # rounding of a few operations
+
+
+def test_broadcast_inputs_give_each_points_own_answer():
+    # Elementwise: a (3, 1) x (1, 4) broadcast equals the 12 scalar calls, bit for bit (blocks and
+    # broadcasting change nothing); 0-d in, 0-d out.
+    mars = BODIES["mars"]
+    v_inf = np.array([[500.0], [2500.0], [6000.0]])
+    periapsis = mars.radius + np.array([[200e3, 400e3, 900e3, 3000e3]])
+    target, angle, limit = mars.radius + 400e3, np.radians(40.0), 2.0e7
+    together = best_three_burn_turn(v_inf, mars.gm, periapsis, target, limit, angle)
+    for i, j in np.ndindex(3, 4):
+        alone = best_three_burn_turn(v_inf[i, 0], mars.gm, periapsis[0, j], target, limit, angle)
+        assert all(np.ndim(x) == 0 for x in alone)
+        assert [float(x) for x in alone] == [float(x[i, j]) for x in together]
