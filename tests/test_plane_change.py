@@ -91,3 +91,35 @@ def test_size_estimate_counts_the_plane_change_arrays():
     assert "plane_change_delta_v" in arrays and "two_burn_first_plane_change" in arrays
     held = sum(values.nbytes for values in arrays.values())
     assert estimate_bytes(config) == held
+
+
+# The independent review's case (issue 12, item 1): Mars, v_inf 3 km/s, target and periapsis both
+# at 400 km. The coplanar three-burn total does not depend on the apoapsis there, the plan took the
+# lowest, and the whole turn was made at that low, fast point: 7,014 m/s at 90 degrees and 4,000 m/s
+# at 30 (as reported, and as this code gave before the fix) against about 2,350 and 2,290 m/s a metre
+# of periapsis away. GM and radius: the packaged catalog, through the config.
+MARS_TURN = """
+name = "mars-turn"
+[grid]
+bodies = ["mars"]
+v_inf = [3.0]
+target_altitude = [400.0]
+periapsis_altitude = [399.0, 399.999, 400.0, 400.001, 401.0]
+plane_change = [30.0, 90.0]
+[spacecraft]
+specific_impulse = 320.0
+arrival_mass = 1000.0
+"""
+
+
+def test_three_burn_turn_is_continuous_where_the_periapsis_is_the_target():
+    cube = run(parse_config(MARS_TURN, "mars-turn.toml"), workers=1)
+    turned = cube.plane_change_delta_v.sel(strategy=2).isel(body=0, v_inf=0, target_altitude=0).values  # (P, angle)
+    near = turned[1:4]  # periapsis 400 km and 1 m either side
+    assert np.ptp(near, axis=0).max() < 1.0  # the issue's requirement: within 1 m/s over +-1 m
+    for index, reported in ((0, 4000.0), (1, 7014.0)):
+        assert (near[:, index] < reported - 1000.0).all()  # far from the reported wrong values
+        # near the neighbours a kilometre away: the cost moves by about 0.1 m/s per km of periapsis here
+        # (measured: 2291.68 and 2291.89 m/s at 30 degrees), so 5 m/s is loose
+        assert (np.abs(near[:, index] - turned[[0, 4], index].mean()) < 5.0).all()
+    assert (cube.plane_change_best_strategy.isel(body=0, v_inf=0, target_altitude=0).values == 2).all()

@@ -135,7 +135,7 @@ def test_a_fourth_strategy_in_the_finite_and_plane_change_sections():
         text = render_summary(plane, tables)
     finally:
         unregister("toy")
-    assert "three_burn turns at apoapsis, toy turns with the apoapsis burn):" in text
+    assert f"three_burn turns at apoapsis, toy turns {lookup('three_burn').turn_how}):" in text
     assert "| plane change | points won: direct / two_burn / three_burn / toy | median cost of the turn |" in text
 
 

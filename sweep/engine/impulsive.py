@@ -108,7 +108,7 @@ def plan_body(body, config: SweepConfig) -> BodyPlan:
                                       target_apoapsis)
         upper = np.fmin(upper, limit)
     apoapsis = best_intermediate_apoapsis(body.gm, periapsis_radius, target_radius, upper, target_apoapsis)
-    geometry = Geometry(body.gm, periapsis_radius, target_radius, apoapsis, target_apoapsis)
+    geometry = Geometry(body.gm, periapsis_radius, target_radius, apoapsis, target_apoapsis, upper)
 
     status, times, constants = [], [], []
     for strategy in STRATEGIES:
@@ -215,14 +215,16 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, config: SweepConfig, out: Arrays, b
 def _plane_change_chunk(speed, plan: BodyPlan, config: SweepConfig, out: Arrays, b: int, speeds: slice) -> None:
     """
     Every strategy with a plane change, for one chunk, each turning as its registry entry says
-    (:attr:`sweep.model.strategies.Strategy.turn`): at the coplanar plan's geometry, with the
-    coplanar feasibility. ``speed``: m/s, shape (V, 1, 1, 1).
+    (:attr:`sweep.model.strategies.Strategy.turn`): from the coplanar plan's geometry (three_burn
+    chooses its apoapsis anew for the turn, up to the plan's limit), with the coplanar
+    feasibility. ``speed``: m/s, shape (V, 1, 1, 1).
     """
     angles = np.radians(config.plane_change)[None, None, None, :]
     g = plan.geometry
     geometry = Geometry(g.gm, g.periapsis_radius[..., None], g.target_radius[..., None],
                         np.asarray(g.apoapsis_radius)[..., None],
-                        None if g.target_apoapsis is None else g.target_apoapsis[..., None])
+                        None if g.target_apoapsis is None else g.target_apoapsis[..., None],
+                        np.asarray(g.apoapsis_limit)[..., None])
     delta_v = out["plane_change_delta_v"][:, b, speeds]
     for index, strategy in enumerate(STRATEGIES):
         turn = strategy.turn(speed, geometry, angles)

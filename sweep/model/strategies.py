@@ -12,6 +12,7 @@ from sweep.model.variables import DIMENSIONS, Variable
 from sweep.physics.capture import (
     Maneuver,
     best_plane_change_split,
+    best_three_burn_turn,
     direct_capture,
     three_burn_capture,
     two_burn_capture,
@@ -42,14 +43,34 @@ NO_STRATEGY = -1  # best strategy where no strategy is feasible
 _KM = 1.0e3  # m per km
 
 
-class Geometry(NamedTuple):
-    """Radii of one body's grid, SI, shaped to broadcast as (v_inf, target, periapsis)."""
+class _GeometryFields(NamedTuple):
+    gm: float
+    periapsis_radius: np.ndarray
+    target_radius: np.ndarray
+    apoapsis_radius: np.ndarray
+    target_apoapsis: np.ndarray | None
+    apoapsis_limit: np.ndarray
 
-    gm: float  # m3 s-2
-    periapsis_radius: np.ndarray  # m, shape (1, P)
-    target_radius: np.ndarray  # m, shape (T, 1)
-    apoapsis_radius: np.ndarray  # m, shape (T, P): the chosen three-burn apoapsis
-    target_apoapsis: np.ndarray | None = None  # m, shape (T, 1): an elliptical target's apoapsis
+
+class Geometry(_GeometryFields):
+    """
+    Radii of one body's grid, SI, shaped to broadcast as (v_inf, target, periapsis).
+
+    ``gm`` [m3 s-2]; ``periapsis_radius`` [m] (1, P); ``target_radius`` [m] (T, 1);
+    ``apoapsis_radius`` [m] (T, P), the chosen coplanar three-burn apoapsis; ``target_apoapsis``
+    [m] (T, 1), an elliptical target's apoapsis, None for a circle; ``apoapsis_limit`` [m] (T, P),
+    the largest admissible three-burn apoapsis (the bound and any time cap), within which a
+    sequence with a plane change may choose its own. Without one it is ``apoapsis_radius``: no
+    higher apoapsis is known to be admissible. Every field is then an array (or the float
+    ``gm``), so code that indexes each field of a Geometry keeps working.
+    """
+
+    __slots__ = ()
+
+    def __new__(cls, gm, periapsis_radius, target_radius, apoapsis_radius, target_apoapsis=None,
+                apoapsis_limit=None):
+        return super().__new__(cls, gm, periapsis_radius, target_radius, apoapsis_radius, target_apoapsis,
+                               apoapsis_radius if apoapsis_limit is None else apoapsis_limit)
 
     @property
     def target_far(self) -> np.ndarray:
@@ -120,6 +141,18 @@ def _two_burn_turn(v, g: Geometry, angle) -> Turn:
     return Turn(maneuver, {"two_burn_first_plane_change": np.degrees(split)})
 
 
+def _three_burn_turn(v, g: Geometry, angle) -> Turn:
+    # Apoapsis and split chosen jointly for the turn, up to the coplanar plan's limit (bound and time
+    # cap); without a turn exactly the coplanar sequence, so the cube's zero angle equals delta_v.
+    radius, first, third = best_three_burn_turn(v, g.gm, g.periapsis_radius, g.target_radius, g.apoapsis_limit,
+                                                angle, g.target_apoapsis, g.apoapsis_radius)
+    coplanar = np.equal(angle, 0.0)
+    radius = np.where(coplanar, g.apoapsis_radius, radius)
+    first, third = (np.where(coplanar, 0.0, share) for share in (first, third))
+    return Turn(three_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius, radius, angle, g.target_apoapsis,
+                                   first, third), {})
+
+
 # The registry, in cube order (the index along the ``strategy`` dimension). The reference every
 # saving and crossover is measured against comes first.
 STRATEGIES: list[Strategy] = [
@@ -170,9 +203,11 @@ STRATEGIES: list[Strategy] = [
         burn_radii=lambda g: [g.periapsis_radius, g.apoapsis_radius, g.target_radius],
         orbits=lambda g: [(g.periapsis_radius, g.apoapsis_radius), (g.target_radius, g.apoapsis_radius),
                           (g.target_radius, g.target_far)],
-        turn=lambda v, g, angle: Turn(three_burn_capture(v, g.gm, g.periapsis_radius, g.target_radius,
-                                                         g.apoapsis_radius, angle, g.target_apoapsis), {}),
-        turn_how="with the apoapsis burn",
+        turn=_three_burn_turn,
+        turn_how="split over its three burns as cheapest, jointly with an apoapsis chosen anew for the turn "
+        "within the coplanar bound and time cap (scan, then golden section): mostly at apoapsis, a part with the "
+        "first (periapsis) and third (target) burns, whose large speed changes absorb a small turn almost free, "
+        "and most or all of it with the first burn where the apoapsis is held low",
         variables=(Variable("intermediate_apoapsis_altitude", DIMENSIONS, "km", "three_burn intermediate apoapsis "
                             "altitude minimising total delta-v within the bound", "impulsive",
                             attrs=lambda config: {"comment": "NaN where three_burn is infeasible"}),),

@@ -41,14 +41,15 @@ from sweep.physics.conics import (
 
 __all__ = [
     "Maneuver",
-    "free_periapsis_capture",
-    "free_periapsis_capture_at_period",
-    "best_plane_change_split",
-    "combined_burn",
     "best_intermediate_apoapsis",
+    "best_plane_change_split",
+    "best_three_burn_turn",
+    "combined_burn",
     "direct_capture",
     "equal_cost_sensitivity",
     "equal_cost_v_inf",
+    "free_periapsis_capture",
+    "free_periapsis_capture_at_period",
     "three_burn_capture",
     "time_limited_apoapsis",
     "two_burn_capture",
@@ -56,6 +57,11 @@ __all__ = [
 
 _SCAN_POINTS = 33  # candidate apoapses on the first, coarse pass
 _GOLDEN_STEPS = 48  # golden-section steps: the log-bracket shrinks by 0.618**48 ~ 1e-10
+_TURN_SCAN_APOAPSES = 5  # apoapses on the joint scan of a turning three-burn sequence (ends included)
+_TURN_SCAN_SPLITS = 20  # the turn in 20ths on that scan: 231 splits over the three burns
+_TURN_ROUNDS = 2  # rounds of golden-section search after it, brackets halved each round
+_TURN_GOLDEN_STEPS = 12  # steps of each: the bracket shrinks by 0.618**12 ~ 3e-3
+_TURN_BLOCK = 1 << 14  # points searched together: its ~70 temporaries fill ~9 MB
 _BISECTION_STEPS = 64  # halvings of a log-bracket: far below float64 resolution of radius
 
 
@@ -278,6 +284,8 @@ def three_burn_capture(
     apoapsis_radius: ArrayLike,
     plane_change: ArrayLike = 0.0,
     target_apoapsis: ArrayLike | None = None,
+    first_share: ArrayLike = 0.0,
+    third_share: ArrayLike = 0.0,
 ) -> Maneuver:
     r"""
     Capture into a high ellipse, move periapsis to the target radius at its apoapsis, then
@@ -296,10 +304,14 @@ def three_burn_capture(
     apoapsis_radius : numeric
         Apoapsis radius of the intermediate ellipse, no smaller than either other radius. [m]
     plane_change : numeric
-        Plane change, made with the apoapsis burn where the speed is lowest. [rad]
+        Total plane change; what the first and third burns do not make, the apoapsis burn makes. [rad]
     target_apoapsis : numeric, optional
         Apoapsis radius of an elliptical target with periapsis ``target_radius``: the third burn
         lowers the apoapsis to it. ``None``: a circle. [m]
+    first_share, third_share : numeric
+        Parts of the plane change made with the first (periapsis) and the third (target) burn;
+        ``plane_change - first_share - third_share`` is made at apoapsis. All three burns lie on
+        the line of apsides, so turns about it add as angles. [rad]
 
     Returns
     -------
@@ -317,22 +329,28 @@ def three_burn_capture(
     :func:`two_burn_capture`.
     """
     burns = _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change,
-                              target_apoapsis)
+                              target_apoapsis, first_share, third_share)
     time = _coast(gm, periapsis_radius, apoapsis_radius) + _coast(gm, target_radius, apoapsis_radius)
     return Maneuver(burns, time)
 
 
-def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0,
-                      target_apoapsis=None):
-    """The three burn magnitudes of :func:`three_burn_capture`, without the times."""
-    first = hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius) - apsis_speed(
-        gm, periapsis_radius, apoapsis_radius
+def _three_burn_speeds(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, target_apoapsis=None):
+    """Speeds (before, after) of each burn of :func:`three_burn_capture`, in order."""
+    return (
+        (hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius), apsis_speed(gm, periapsis_radius, apoapsis_radius)),
+        (apsis_speed(gm, apoapsis_radius, periapsis_radius), apsis_speed(gm, apoapsis_radius, target_radius)),
+        (apsis_speed(gm, target_radius, apoapsis_radius),
+         _target_speed(gm, target_radius, target_radius, target_apoapsis)),
     )
-    second = combined_burn(apsis_speed(gm, apoapsis_radius, periapsis_radius),
-                           apsis_speed(gm, apoapsis_radius, target_radius), plane_change)
-    third = np.abs(apsis_speed(gm, target_radius, apoapsis_radius)
-                   - _target_speed(gm, target_radius, target_radius, target_apoapsis))
-    return first, second, third
+
+
+def _three_burn_burns(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0,
+                      target_apoapsis=None, first_share=0.0, third_share=0.0):
+    """The three burn magnitudes of :func:`three_burn_capture`, without the times."""
+    turns = (first_share, np.asarray(plane_change) - first_share - third_share, third_share)
+    return tuple(combined_burn(before, after, turn) for (before, after), turn in
+                 zip(_three_burn_speeds(v_inf, gm, periapsis_radius, target_radius, apoapsis_radius,
+                                        target_apoapsis), turns, strict=True))
 
 
 def _three_burn_total(gm, periapsis_radius, target_radius, apoapsis_radius, plane_change=0.0, target_apoapsis=None):
@@ -416,27 +434,35 @@ def _scan_and_refine(cost, lower, upper, forward, inverse):
     scan_cost = np.take_along_axis(cost_scan, best, axis=-1)[..., 0]
     left = np.take_along_axis(u, np.maximum(best - 1, 0), axis=-1)[..., 0]
     right = np.take_along_axis(u, np.minimum(best + 1, _SCAN_POINTS - 1), axis=-1)[..., 0]
+    refined = np.clip(inverse(_golden_section(lambda point: cost(inverse(point), grid), left, right)), lower, upper)
+    refined_cost = cost(refined, grid)
+    chosen = np.where(refined_cost < scan_cost, refined, scan_best)
+    return np.where(np.isnan(upper) | np.isnan(scan_cost), np.nan, chosen)
+
+
+def _golden_section(cost, left, right, steps=_GOLDEN_STEPS):
+    """
+    Golden-section search ([3]_) of ``cost(u)`` in ``[left, right]`` (arrays, elementwise), ``steps``
+    steps; the middle of the last bracket. Finds the minimum of a unimodal cost, else a local one.
+    """
     ratio = (np.sqrt(5.0) - 1.0) / 2.0
     inner_left = right - ratio * (right - left)
     inner_right = left + ratio * (right - left)
-    cost_left = cost(inverse(inner_left), grid)
-    cost_right = cost(inverse(inner_right), grid)
-    for _ in range(_GOLDEN_STEPS):
+    cost_left = cost(inner_left)
+    cost_right = cost(inner_right)
+    for _ in range(steps):
         keep_left = cost_left <= cost_right
         old_inner_left, old_inner_right = inner_left, inner_right
         right = np.where(keep_left, old_inner_right, right)
         left = np.where(keep_left, left, old_inner_left)
         inner_left = np.where(keep_left, right - ratio * (right - left), old_inner_right)
         inner_right = np.where(keep_left, old_inner_left, left + ratio * (right - left))
-        moved_cost = cost(inverse(np.where(keep_left, inner_left, inner_right)), grid)
+        moved_cost = cost(np.where(keep_left, inner_left, inner_right))
         cost_left, cost_right = (
             np.where(keep_left, moved_cost, cost_right),
             np.where(keep_left, cost_left, moved_cost),
         )
-    refined = np.clip(inverse(0.5 * (left + right)), lower, upper)
-    refined_cost = cost(refined, grid)
-    chosen = np.where(refined_cost < scan_cost, refined, scan_best)
-    return np.where(np.isnan(upper) | np.isnan(scan_cost), np.nan, chosen)
+    return 0.5 * (left + right)
 
 
 def best_plane_change_split(
@@ -474,6 +500,210 @@ def best_plane_change_split(
                                     None if target_apoapsis is None else far[index]).burns)
 
     return _scan_and_refine(cost, np.zeros_like(plane_change), plane_change, lambda x: x, lambda u: u)
+
+
+def best_three_burn_turn(
+    v_inf: ArrayLike, gm: ArrayLike, periapsis_radius: ArrayLike, target_radius: ArrayLike,
+    upper_radius: ArrayLike, plane_change: ArrayLike, target_apoapsis: ArrayLike | None = None,
+    apoapsis_radius: ArrayLike | None = None,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    r"""
+    Intermediate apoapsis and split of the plane change that minimise the turning three-burn total.
+
+    Parameters
+    ----------
+    v_inf : numeric
+        Arrival speed. [m/s]
+    gm : numeric
+        Gravitational parameter of the body. [m^3/s^2]
+    periapsis_radius, target_radius : numeric
+        Approach periapsis and target radii. [m]
+    upper_radius : numeric
+        Largest admissible apoapsis radius: the bound, and where there is a time cap the
+        apoapsis whose sequence takes that long (:func:`time_limited_apoapsis`; the time rises
+        with the apoapsis, so every apoapsis below it fits the cap). [m]
+    plane_change : numeric
+        Total plane change. [rad]
+    target_apoapsis : numeric, optional
+        Apoapsis of an elliptical target (periapsis ``target_radius``); ``None``: a circle. [m]
+    apoapsis_radius : numeric, optional
+        An apoapsis to try as well with the whole turn made there (the coplanar plan's), so
+        that the answer never costs more than that sequence. [m]
+
+    Returns
+    -------
+    apoapsis_radius, first_share, third_share : numeric
+        The apoapsis in :math:`[\max(r_p, r_t), r_{upper}]` (as for :func:`best_intermediate_apoapsis`)
+        and the parts of the plane change made with the first and the third burn of
+        :func:`three_burn_capture` (the rest at apoapsis), each in :math:`[0, \Delta i]`, their
+        sum at most :math:`\Delta i`. NaN where the bound or the cost is NaN. [m], [rad], [rad]
+
+    Notes
+    -----
+    Three unknowns per point: :math:`u = \ln r_a` and the turns :math:`\theta_1, \theta_3`
+    (:math:`\theta_2 = \Delta i - \theta_1 - \theta_3`); burn :math:`k` costs
+    :math:`\sqrt{(v_k' - v_k)^2 + 4 v_k v_k' \sin^2(\theta_k / 2)}` (:func:`combined_burn`), and the
+    three burns lie on the line of apsides, so the turns add. The cost is not convex: a burn that
+    only turns costs :math:`2 v \sin(\theta/2)`, concave, and with :math:`r_p = r_t` and a low
+    bound the best split can jump from one burn to another. So the search is global first:
+
+    1. a scan of 5 apoapses, log-spaced with the ends exact; at each, every split of the turn in
+       steps of :math:`\Delta i / 20` (231 splits; each burn's cost is tabulated at the 21 turns
+       once and a split is a sum of three table entries). The 3 splits that turn with one burn
+       only (exact where they win) are kept apart from the others, and the cheapest of the others
+       is refined by 2 rounds of golden-section search ([3]_, 12 steps each) along three
+       directions in turn (the first burn against the apoapsis burn, the third against it, the
+       first against the third), within a bracket of one scan step about the current split, halved
+       each round; a result replaces the split only where it costs less. The better of the two
+       is that apoapsis's split. Kept apart since a one-burn corner can beat the scan's nearby
+       splits while a narrow valley of splits between them beats the corner.
+    2. from the best of those, 2 rounds of: golden-section search along the apoapsis (half a scan
+       step either side, then a quarter), then one round of the split search there.
+    3. the coplanar plan's apoapsis with the whole turn at apoapsis, where that is cheaper still.
+
+    It is a joint search, not a split at the coplanar plan's apoapsis: with :math:`r_p = r_t` the
+    coplanar total does not depend on :math:`r_a`, the plan takes the lowest, and a turn is cheap
+    only at a high one. The total depends on the arrival speed through the first burn (its turn),
+    so the search runs per arrival speed. Tested against a dense brute force.
+    """
+    far = target_radius if target_apoapsis is None else target_apoapsis
+    start = upper_radius if apoapsis_radius is None else apoapsis_radius
+    inputs = [np.asarray(x, dtype=float) for x in
+              (v_inf, gm, periapsis_radius, target_radius, upper_radius, plane_change, far, start)]
+    shape = np.broadcast_shapes(*(x.shape for x in inputs))
+    arrays = np.broadcast_arrays(*(np.atleast_1d(x) for x in inputs))
+    size = arrays[0].size
+    found = np.empty((3, size))
+    # Blocks of points, gathered from the broadcast inputs: the search holds some 70 arrays of a
+    # block at once (the scan's tables), so memory stays bounded whatever the chunk, and a block
+    # stays in cache.
+    for begin in range(0, size, _TURN_BLOCK):
+        index = np.unravel_index(np.arange(begin, min(begin + _TURN_BLOCK, size)), arrays[0].shape)
+        found[:, begin:begin + _TURN_BLOCK] = _three_burn_turn_block(*(x[index] for x in arrays),
+                                                                     elliptical=target_apoapsis is not None)
+    return tuple(x.reshape(shape) for x in found)
+
+
+def _three_burn_turn_block(v_inf, gm, periapsis_radius, target_radius, upper_radius, plane_change, far, start,
+                           elliptical):
+    """:func:`best_three_burn_turn` on 1-D arrays of equal length: (apoapsis, first, third) stacked."""
+    lower = np.maximum(periapsis_radius, far)
+    upper = np.maximum(upper_radius, lower)
+    low_u, high_u = np.log(lower), np.log(upper)
+
+    def radius_of(log_radius):
+        # the ends exactly (the plan's apoapsis is often one) and never beyond them by a rounding of exp(log(.))
+        return np.where(log_radius <= low_u, lower,
+                        np.where(log_radius >= high_u, upper, np.clip(np.exp(log_radius), lower, upper)))
+
+    def terms(log_radius):
+        radius = radius_of(log_radius)
+        pairs = _three_burn_speeds(v_inf, gm, periapsis_radius, target_radius, radius, far if elliptical else None)
+        return [((after - before) ** 2, 4.0 * before * after) for before, after in pairs]
+
+    def cost(burn_terms, first, third):
+        turns = (first, plane_change - first - third, third)
+        return sum(_burn_cost(burn, turn) for burn, turn in zip(burn_terms, turns, strict=True))
+
+    step_u = (high_u - low_u) / (_TURN_SCAN_APOAPSES - 1)
+    step_share = plane_change / _TURN_SCAN_SPLITS
+    best, best_cost = None, None
+    for fraction in np.linspace(0.0, 1.0, _TURN_SCAN_APOAPSES):
+        log_radius = low_u + (high_u - low_u) * fraction
+        here = terms(log_radius)
+        (split, split_cost), (corner, corner_cost) = _scan_split(here, step_share)
+        split, split_cost = _refine_split(lambda first, third, here=here: cost(here, first, third), split, split_cost,
+                                          plane_change, step_share, _TURN_ROUNDS)
+        split, split_cost = _keep_cheaper(split, split_cost, corner, corner_cost)
+        point = [log_radius, *split]
+        best, best_cost = (point, split_cost) if best is None else _keep_cheaper(best, best_cost, point, split_cost)
+    for round_ in range(_TURN_ROUNDS):
+        reach = 0.5 ** (round_ + 1) * step_u
+        u, first, third = best
+
+        def along(t, u=u, first=first, third=third):
+            return cost(terms(u + t), first, third)
+
+        t = _golden_section(along, -np.minimum(u - low_u, reach), np.minimum(high_u - u, reach), _TURN_GOLDEN_STEPS)
+        best, best_cost = _keep_cheaper(best, best_cost, [u + t, first, third], along(t))
+        here = terms(best[0])  # the burns' speeds at the apoapsis chosen so far: the split moves alone
+        split, best_cost = _refine_split(lambda first, third, here=here: cost(here, first, third), best[1:],
+                                         best_cost, plane_change, 0.5 ** (round_ + 1) * step_share, 1)
+        best = [best[0], *split]
+    zero = np.zeros_like(plane_change)
+    plan = [np.log(np.clip(start, lower, upper)), zero, zero]
+    best, best_cost = _keep_cheaper(best, best_cost, plan, cost(terms(plan[0]), zero, zero))
+    u, first, third = best
+    radius = radius_of(u)
+    invalid = np.isnan(upper) | np.isnan(best_cost)
+    return np.where(invalid, np.nan, np.stack([radius, first, third]))
+
+
+def _burn_cost(terms, turn):
+    """One burn of a turning sequence from its terms ((v' - v)^2, 4 v v'): :func:`combined_burn`'s formula."""
+    square, product = terms
+    return np.sqrt(square + product * np.sin(0.5 * turn) ** 2)
+
+
+def _scan_split(terms, step):
+    """
+    Splits of ``_TURN_SCAN_SPLITS`` steps of turn over three burns with these terms, each burn's
+    cost tabulated once: ([first, third], total) of the cheapest split that turns with more than
+    one burn, and of the cheapest that turns with one only (a corner of the simplex: exact, and
+    kept apart so that a corner does not hide a narrow valley of splits beside it).
+    """
+    count = _TURN_SCAN_SPLITS
+    tables = [[_burn_cost(burn, step * k) for k in range(count + 1)] for burn in terms]
+    corners = [((count, 0), tables[0][count] + tables[1][0] + tables[2][0]),
+               ((0, 0), tables[0][0] + tables[1][count] + tables[2][0]),
+               ((0, count), tables[0][0] + tables[1][0] + tables[2][count])]
+    inner = [(first, third) for first in range(count + 1) for third in range(count + 1 - first)
+             if (first, third) not in ((count, 0), (0, 0), (0, count))]
+    found = []
+    for candidates in (inner, corners):
+        best_cost, best_first, best_third = None, np.zeros(step.shape), np.zeros(step.shape)
+        for item in candidates:
+            (first, third), total = item if candidates is corners else (item, None)
+            if total is None:
+                total = tables[0][first] + tables[2][third]
+                total += tables[1][count - first - third]
+            if best_cost is None:
+                best_cost, best_first[...], best_third[...] = total, first, third
+                continue
+            cheaper = total < best_cost
+            np.copyto(best_cost, total, where=cheaper)
+            np.copyto(best_first, first, where=cheaper)
+            np.copyto(best_third, third, where=cheaper)
+        found.append(([best_first * step, best_third * step], best_cost))
+    return found
+
+
+def _refine_split(cost, split, split_cost, plane_change, width, rounds):
+    """
+    Golden-section search ([3]_) from ``split`` = [first, third] along three directions in turn
+    (first burn against apoapsis burn, third against it, first against third), within ``width``
+    either side, halved each of ``rounds``; a result replaces the split only where it costs less.
+    """
+    for round_ in range(rounds):
+        reach = 0.5**round_ * width
+        for direction in ((1.0, 0.0), (0.0, 1.0), (1.0, -1.0)):
+            first, third = split
+            rest = plane_change - first - third
+            below, above = {(1.0, 0.0): (first, rest), (0.0, 1.0): (third, rest)}.get(direction, (first, third))
+
+            def moved(t, first=first, third=third, direction=direction):
+                return [first + direction[0] * t, third + direction[1] * t]
+
+            t = _golden_section(lambda t: cost(*moved(t)), -np.minimum(below, reach), np.minimum(above, reach),
+                                _TURN_GOLDEN_STEPS)
+            split, split_cost = _keep_cheaper(split, split_cost, moved(t), cost(*moved(t)))
+    return split, split_cost
+
+
+def _keep_cheaper(best, best_cost, point, point_cost):
+    """The point (a list of arrays) where it costs less than the best so far, elementwise."""
+    cheaper = point_cost < best_cost
+    return [np.where(cheaper, x, y) for x, y in zip(point, best, strict=True)], np.where(cheaper, point_cost, best_cost)
 
 
 def time_limited_apoapsis(

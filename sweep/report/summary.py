@@ -40,7 +40,7 @@ _SPEED_PERIAPSIS = ("v_inf", "periapsis_altitude")  # one target's slice of the 
 _DIVE = "two_burn"
 # How each strategy makes a plane change, in the plane-change section's heading; others say their registry entry's.
 _TURNS = {"direct": "direct turns with its burn", "two_burn": "two_burn splits the turn",
-          "three_burn": "three_burn turns at apoapsis"}
+          "three_burn": "three_burn splits the turn over its burns, with an apoapsis chosen for it"}
 _TWO_BURN_SPLIT = "two_burn_first_plane_change"  # the cube variable of two_burn's turn at its first burn
 
 
