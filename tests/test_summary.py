@@ -128,14 +128,15 @@ def test_a_fourth_strategy_in_the_finite_and_plane_change_sections():
     text = render_summary(plane, tables)
     assert ("With a plane change (direct turns with its burn, two_burn splits the turn, three_burn turns at "
             "apoapsis, toy turns with the apoapsis burn):") not in text  # toy is not registered: no entry to ask
-    assert "three_burn turns at apoapsis, toy: turn not described by this version's registry):" in text
+    assert ("three_burn splits the turn over its burns, with an apoapsis chosen for it, toy: turn not described by "
+            "this version's registry):") in text
     # registered, toy says how it turns from its registry entry
     register(replace(lookup("three_burn"), name="toy"))
     try:
         text = render_summary(plane, tables)
     finally:
         unregister("toy")
-    assert f"three_burn turns at apoapsis, toy turns {lookup('three_burn').turn_how}):" in text
+    assert f"with an apoapsis chosen for it, toy turns {lookup('three_burn').turn_how}):" in text
     assert "| plane change | points won: direct / two_burn / three_burn / toy | median cost of the turn |" in text
 
 
