@@ -40,6 +40,7 @@ def test_a_held_lock_refuses_a_python_caller_naming_the_holder(config_file, tmp_
     assert not (out / "small-test.nc").exists()
 
 
+@pytest.mark.slow  # about 5 s: three commands run end to end
 def test_workers_bound_the_figures_too(config_file, tmp_path, monkeypatch):
     import sweep.report.figures
 

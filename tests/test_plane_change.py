@@ -69,6 +69,7 @@ def test_plane_change_config_errors(new, message):
         parse_config(PLANE.replace("plane_change = [0.0, 5.0, 20.0]", new), "p.toml")
 
 
+@pytest.mark.slow  # about 5 s: a run with the CF checker
 def test_cli_run_with_plane_change_writes_cf_cube_and_summary_section(config_file, tmp_path):
     out = tmp_path / "out"
     assert main(["run", str(config_file(PLANE)), "--out", str(out), "-q", "--workers", "1"]) == 0

@@ -71,6 +71,7 @@ def test_every_listed_figure_is_written_and_no_finite_ones_without_thrust(small_
     assert ("mars", "winner_mars.png", "Mars: cheapest capture strategy") in figure_files(cube)
 
 
+@pytest.mark.slow  # about 6 s: every figure of a run drawn and read back
 def test_figures_are_pngs_of_a_sensible_size_and_not_blank(small_figures):
     _, _, paths = small_figures
     for path in paths:

@@ -57,6 +57,7 @@ def test_checkpoints_count_in_the_disk_check(finite_file, tmp_path, capsys, monk
     assert not out.exists()
 
 
+@pytest.mark.slow  # about 5 s: a finite run
 def test_a_killed_runs_stale_checkpoints_are_reclaimed_and_foreign_folders_kept(finite_file, tmp_path, capsys):
     config = parse_config(FINITE_CONFIG, str(finite_file))
     out = tmp_path / "out"

@@ -69,6 +69,7 @@ def test_a_missing_or_edited_report_file_is_redone_without_the_cube(config_file,
     assert "redoing the report only" in (out / "capsweep.log").read_text()
 
 
+@pytest.mark.slow  # about 4-5 s each: a run, a damaged cube, a rerun
 @pytest.mark.parametrize("damage", ["truncate", "flip"])
 def test_a_damaged_cube_is_recomputed(config_file, tmp_path, damage):
     config = parse_config(config_file().read_text(), str(config_file()))

@@ -54,6 +54,7 @@ def test_universal_winner_regions():
     assert (cube.saving_ratio.values >= 0).all()
 
 
+@pytest.mark.slow  # about 6 s: the universal cube and map through the command line
 def test_universal_command_writes_cf_cube_and_map(tmp_path, capsys):
     import matplotlib.image as mpimg
     import xarray as xr
