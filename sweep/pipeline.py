@@ -53,7 +53,7 @@ from sweep.model.strategies import STRATEGIES
 from sweep.model.variables import cube_variables
 from sweep.physics.rocket import STANDARD_GRAVITY
 from sweep.report.selection import BLOCK_BYTES
-from sweep.report.summary import answers, write_summary
+from sweep.report.summary import answers, summary_tables, write_summary
 from sweep.safefs import check_folder, make_folder, open_log, remove_stale_parts, temporary_beside
 
 __all__ = [
@@ -127,10 +127,14 @@ class ReportFiles:
         ``summary.md`` first, then the CSV tables; empty when no summary was written.
     figures : list of Path
         The PNG figures; empty when none were drawn.
+    tables : dict of DataFrame, optional
+        The summary's tables (:func:`sweep.report.summary.summary_tables`), for answers drawn
+        from them without computing them again; None when no summary was written.
     """
 
     summary: list[Path] = field(default_factory=list)
     figures: list[Path] = field(default_factory=list)
+    tables: dict | None = field(default=None, repr=False, compare=False)
 
 
 @dataclass(frozen=True)
@@ -282,7 +286,8 @@ def run_sweep(config: SweepConfig, folder: str | Path | None = None, *, workers:
                         "cube computed" if action == "computed" else "report redone", len(written), len(removed))
             return RunResult(cube_path, folder, report.summary, report.figures, elapsed,
                              int(dataset["best_strategy"].size), int(dataset.sizes["strategy"]), False,
-                             short_answer(dataset), action=action, reason=state.reason, removed=removed)
+                             short_answer(dataset, report.tables), action=action, reason=state.reason,
+                             removed=removed)
 
 
 def summarize_cube(path: str | Path, folder: str | Path | None = None, workers: int | None = None) -> ReportFiles:
@@ -393,10 +398,11 @@ def bodies_text() -> str:
     return "\n".join(lines)
 
 
-def short_answer(dataset: xr.Dataset) -> str:
-    """The summary's plain-language answers, one block per body, and the caution."""
+def short_answer(dataset: xr.Dataset, tables: dict | None = None) -> str:
+    """The summary's plain-language answers, one block per body, and the caution; from ``tables``
+    (:func:`sweep.report.summary.summary_tables` of ``dataset``) where given, else computed."""
     out = []
-    for body, sentences in answers(dataset).items():
+    for body, sentences in answers(dataset, tables).items():
         out.append(f"{body}:")
         out += [f"  {sentence}" for sentence in sentences]
     out.append(_CAUTION)
@@ -692,12 +698,14 @@ def _write_report(dataset: xr.Dataset, folder: Path, workers: int | None, figure
         staging.mkdir()
         try:
             drawn = _draw_figures(dataset, staging, workers) if figures else []
-            written = write_summary(dataset, staging, figure_folder=None if figures else folder) if summary else []
+            tables = summary_tables(dataset) if summary else None  # once: the console answer reads them too
+            written = write_summary(dataset, staging, figure_folder=None if figures else folder,
+                                    tables=tables) if summary else []
             for path in [*drawn, *written]:  # figures first, so every figure summary.md links is there
                 os.replace(path, folder / path.name)
         finally:
             shutil.rmtree(staging, ignore_errors=True)
-        return ReportFiles([folder / p.name for p in written], [folder / p.name for p in drawn])
+        return ReportFiles([folder / p.name for p in written], [folder / p.name for p in drawn], tables)
 
     return _writing(folder, stage)
 

@@ -107,3 +107,23 @@ def test_the_package_loads_its_public_names_on_first_use():
 
     with pytest.raises(AttributeError, match=r"module 'sweep' has no attribute 'no_such_name'"):
         sweep.no_such_name  # noqa: B018
+
+
+def test_a_run_computes_the_summary_tables_once(config_file, tmp_path, monkeypatch):
+    # The summary files and the console answer share one computation of the tables (minutes on
+    # a grid of 100 million points).
+    import sweep.pipeline
+    import sweep.report.summary
+
+    real, calls = sweep.report.summary.summary_tables, []
+
+    def counted(dataset):
+        calls.append(1)
+        return real(dataset)
+
+    monkeypatch.setattr(sweep.pipeline, "summary_tables", counted)
+    monkeypatch.setattr(sweep.report.summary, "summary_tables", counted)
+    path = config_file()
+    result = run_sweep(load_config(path), tmp_path / "out", workers=1)
+    assert calls == [1]
+    assert result.answer.startswith("mars:") and (tmp_path / "out" / "summary.md").is_file()

@@ -470,20 +470,22 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
     return "\n".join(lines)
 
 
-def write_summary(dataset: xr.Dataset, folder: str | Path, figure_folder: str | Path | None = None) -> list[Path]:
+def write_summary(dataset: xr.Dataset, folder: str | Path, figure_folder: str | Path | None = None,
+                  tables: dict[str, pd.DataFrame] | None = None) -> list[Path]:
     """
     Write summary.md and the CSV tables into ``folder``; return the paths written.
 
     The figures of :func:`sweep.report.figures.write_figures` already in ``figure_folder``
     (default ``folder``) are linked from summary.md (write them first); missing ones are left
-    out. Every table and the text are rendered before the first file is written, so a failure
+    out. ``tables``: :func:`summary_tables` of ``dataset`` where the caller has them already.
+    Every table and the text are rendered before the first file is written, so a failure
     while rendering writes nothing; each file is whole or absent (:func:`sweep.atomic.replacing`).
     """
     from sweep.report.figures import figure_files  # here, not above: matplotlib loads only when a summary is written
 
     folder = Path(folder)
     figure_folder = Path(figure_folder) if figure_folder is not None else folder
-    tables = summary_tables(dataset)
+    tables = tables if tables is not None else summary_tables(dataset)
     figures = [figure for figure in figure_files(dataset) if (figure_folder / figure[1]).is_file()]
     texts = {f"{name}.csv": table.to_csv(index=False, float_format="%.6g") for name, table in tables.items()}
     texts = {"summary.md": render_summary(dataset, tables, figures), **texts}
