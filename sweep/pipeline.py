@@ -52,7 +52,7 @@ from sweep.manifest import Assessment, Manifest, assess, read_manifest, record, 
 from sweep.model.strategies import STRATEGIES
 from sweep.model.variables import cube_variables
 from sweep.physics.rocket import STANDARD_GRAVITY
-from sweep.report.selection import BLOCK_BYTES
+from sweep.report.selection import BLOCK_BYTES, MAX_PERIAPSIS_PANELS
 from sweep.report.summary import answers, summary_tables, write_summary
 from sweep.safefs import check_folder, make_folder, open_log, remove_stale_parts, temporary_beside
 
@@ -81,7 +81,6 @@ CUBE_VARIABLES = ("best_strategy", "saving_over_direct", "status", "crossover_v_
 """Variables every capsweep cube has; a netCDF file lacking one is not a capsweep cube."""
 
 LOG_NAME = "capsweep.log"
-_PANELS = 6  # periapsis panels a figure draws at most (report/figures/winner.py)
 _CHECKPOINT_NAME = re.compile(r"[0-9a-f]{16}\.chunks")  # after ".<config name>.": the key and the suffix
 # Virtual memory a run maps besides its results: the interpreter, numpy, xarray, netCDF/HDF5,
 # matplotlib, thread stacks and worker pools. Measured here as VmPeak 650 MB (impulsive) to 800
@@ -518,7 +517,7 @@ def estimate_needs(config: SweepConfig, workers: int | None = None) -> Needs:
     finite = _array_bytes(layout(config, ("finite", "finite_crossover")))
     # The summary reads one body's target at a time, the figures up to six periapses of a body, and
     # reductions go block by block (a block and a mask of it): twice the largest, for temporaries.
-    drawn = per_body * min(_PANELS, nperiapsis) // max(nperiapsis, 1)
+    drawn = per_body * min(MAX_PERIAPSIS_PANELS, nperiapsis) // max(nperiapsis, 1)
     report = 2 * max(per_body // max(ntarget, 1), drawn) + 2 * min(BLOCK_BYTES, per_body)
     return Needs(cube=estimate_bytes(config), checkpoints=_array_bytes(layout(config, ("finite",))), maps=finite,
                  evaluation=estimate_memory(config, workers), report=report)
@@ -714,12 +713,15 @@ _STAGE_PREFIX = ".capsweep-report-"
 
 
 def _remove_dead_stages(folder: Path) -> None:
-    """Remove staging folders left by killed processes (their pid is in the name)."""
-    from sweep.engine.processes import alive
-
+    """Remove staging folders left by killed processes of ours (their pid is in the name; real folders we own)."""
     for stage in folder.glob(f"{_STAGE_PREFIX}*"):
         pid = stage.name[len(_STAGE_PREFIX):].split("-")[0]
-        if pid.isdigit() and int(pid) != os.getpid() and not alive(int(pid)):
+        try:
+            status = stage.lstat()
+        except OSError:
+            continue
+        if (pid.isdigit() and int(pid) != os.getpid() and not alive(int(pid)) and stat.S_ISDIR(status.st_mode)
+                and status.st_uid == os.geteuid()):
             shutil.rmtree(stage, ignore_errors=True)
 
 

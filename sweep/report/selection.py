@@ -17,10 +17,12 @@ import xarray as xr
 
 from sweep.model.strategies import REFERENCE
 
-__all__ = ["BLOCK_BYTES", "GRID", "any_along", "array", "blocks", "body_label", "challenger_names", "count_values",
-           "feasible_periapses", "labelled", "lowest_periapsis_below", "one_body", "strategy_labels"]
+__all__ = ["BLOCK_BYTES", "GRID", "MAX_PERIAPSIS_PANELS", "any_along", "array", "blocks", "body_label",
+           "challenger_names", "count_values", "feasible_periapses", "labelled", "lowest_periapsis_below", "one_body",
+           "strategy_labels"]
 
 BLOCK_BYTES = 64 << 20  # the most one blockwise read holds at once
+MAX_PERIAPSIS_PANELS = 6  # periapsis altitudes a winner map draws at most, one small multiple each
 
 GRID = ("v_inf", "target_altitude", "periapsis_altitude")  # the grid's dimensions, in the order the report reads
 

@@ -10,12 +10,19 @@ from matplotlib.figure import Figure
 from sweep.report.figures import common
 from sweep.report.figures.maps import MapAxes, panel_grid
 from sweep.report.format import km
-from sweep.report.selection import GRID, array, body_label, challenger_names, feasible_periapses, strategy_labels
+from sweep.report.selection import (
+    GRID,
+    MAX_PERIAPSIS_PANELS,
+    array,
+    body_label,
+    challenger_names,
+    feasible_periapses,
+    strategy_labels,
+)
 
 __all__ = ["TITLE", "draw"]
 
 TITLE = "cheapest capture strategy"
-_MAX_PERIAPSIS_PANELS = 6  # small multiples, one per periapsis altitude
 
 
 def draw(cube: xr.Dataset) -> Figure:
@@ -24,7 +31,7 @@ def draw(cube: xr.Dataset) -> Figure:
     periapses = cube["periapsis_altitude"].values
     candidates = feasible_periapses(cube, challenger_names(names))
     pool = candidates or list(range(periapses.size))
-    shown = common.evenly(pool, _MAX_PERIAPSIS_PANELS)
+    shown = common.evenly(pool, MAX_PERIAPSIS_PANELS)
     nothing = common.nothing_feasible(cube)
     if nothing:  # one grey panel says it; more would repeat it
         shown, which = shown[:1], f"{nothing}; one periapsis altitude shown"
