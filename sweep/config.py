@@ -147,6 +147,9 @@ class FiniteBurn(_Model):
     """Finite-burn model options."""
 
     steering: Literal["tangential", "inertial"] = "tangential"
+    # Periapsis passes a capture burn is split over: a count, or "auto" (split only where needed).
+    passes: Literal["auto"] | Annotated[int, Field(ge=1, le=64)] = "auto"
+    max_passes: Annotated[int, Field(ge=1, le=64)] = 8  # the most passes "auto" gives one burn
 
 
 class BodyFields(_Model):
@@ -197,6 +200,8 @@ class SweepConfig:
     thrust_given_as: str  # "thrust" or "thrust_to_weight": how the config stated the axis
     plane_change: np.ndarray | None  # degrees, the plane-change axis; None for coplanar sweeps
     steering: str  # finite-burn steering law
+    finite_passes: int | str  # passes of a split capture: a count or "auto"
+    finite_max_passes: int  # the most passes "auto" gives one burn
     text: str  # the TOML exactly as read
     path: str  # where it was read from
     target_apoapsis_altitude: float | None = None  # km: elliptical target with this apoapsis ...
@@ -393,6 +398,8 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         thrust_given_as=given_as,
         plane_change=plane_change,
         steering=model.finite_burn.steering,
+        finite_passes=model.finite_burn.passes,
+        finite_max_passes=model.finite_burn.max_passes,
         text=text,
         path=path,
     )

@@ -49,7 +49,11 @@ _FINITE_DIMS = {v.name: v.dims for v in cube_variables(()) if v.checkpointed}
 _OUTCOME_CODE = np.array([0] + [status_code(name) for name in OUTCOMES[1:]], dtype=np.int8)
 FINITE_STAGES = ("finite", "finite_crossover")
 _ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
-_ROOT_TOLERANCE = 1e-3  # m/s of cost difference, or of bracket width: far below model accuracy
+# Stop once the cost difference is within the finite model's stated agreement with an independent
+# integration (0.05 m/s; the aim's own tolerance moves the cost by about 0.01 m/s), or the bracket
+# is narrower than 1 m/s of arrival speed (1e-3 km/s, the precision a crossover is read at).
+_ROOT_COST = 0.05  # m/s
+_ROOT_WIDTH = 1.0  # m/s
 _BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
 _SHM_HEADROOM = 16 << 20  # bytes of /dev/shm left to others (and to joblib's own memmaps) at the least
 _MIN_CHUNKS = 16  # finite-burn chunks per sweep at least, where the grid has that many arrival speeds
@@ -72,15 +76,40 @@ class _BodyInputs:
     apoapsis_radius: np.ndarray  # (T, P)
     status: np.ndarray  # (S, T, P)
     target_apoapsis: np.ndarray | None = None  # (T, 1): an elliptical target's apoapsis
+    safe_radius: float = 0.0  # lowest safe periapsis radius
+    bound: float = np.nan  # apoapsis bound: the long ellipse a split capture enters first
 
 
-def _fly(strategy, gm, radius, soi, geometry: Geometry, speed, thrust, exhaust_speed, mass, steering):
-    """Fly one strategy for flat arrays of points; geometry arrays are flat too."""
+@dataclass(frozen=True)
+class _Engine:
+    """The spacecraft and how its burns are flown (the same for every chunk of a run)."""
+
+    exhaust_speed: float  # m/s
+    mass: float  # kg on arrival
+    steering: str
+    passes: int | str
+    max_passes: int
+
+    @classmethod
+    def of(cls, config: SweepConfig) -> _Engine:
+        return cls(config.specific_impulse * STANDARD_GRAVITY, config.arrival_mass, config.steering,
+                   config.finite_passes, config.finite_max_passes)
+
+
+def _fly(strategy, body: _BodyInputs, geometry: Geometry, speed, thrust, engine: _Engine, approach=None,
+         passes=None):
+    """
+    Fly one strategy for flat arrays of points; geometry arrays are flat too. The aim starts from
+    ``approach`` (approach periapsis radius) where given, else from the impulsive one; ``passes``
+    (burns, points) fixes every burn's passes, else the engine's rule decides.
+    """
     maneuver = strategy.kernel(speed, geometry)
-    energies = [-gm / (a + b) for a, b in strategy.orbits(geometry)]
+    approach = strategy.first_burn_radius(geometry) if approach is None else approach
     return fly_capture(
-        gm, radius, soi, speed, strategy.first_burn_radius(geometry), strategy.burn_radii(geometry),
-        energies, list(maneuver.burns), thrust, exhaust_speed, mass, steering,
+        body.gm, body.radius, body.soi, speed, approach, strategy.burn_radii(geometry),
+        strategy.orbits(geometry), list(maneuver.burns), thrust, engine.exhaust_speed, engine.mass, engine.steering,
+        safe_radius=body.safe_radius, split_apoapsis=body.bound, passes=engine.passes if passes is None else passes,
+        max_passes=engine.max_passes,
     ), maneuver
 
 
@@ -108,7 +137,7 @@ def _axis(name: str, dim: str) -> int:
     return _FINITE_DIMS[name].index(dim)
 
 
-def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steering, strategies) -> Arrays:
+def _run_chunk(body: _BodyInputs, speeds_km, thrust, engine: _Engine, strategies) -> Arrays:
     """
     All ``strategies`` (the registry's entries, passed along so that worker processes fly the
     same ones) for one body, a run of arrival speeds, every target, periapsis and thrust.
@@ -118,6 +147,7 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
     out = _without_body(arrays)
     grids = np.meshgrid(speeds_km * _KM, np.arange(shape[1]), np.arange(shape[2]), thrust, indexing="ij")
     speed, target_index, periapsis_index, thrusts = (g.ravel() for g in grids)
+    exhaust_speed, mass = engine.exhaust_speed, engine.mass
     for s, strategy in enumerate(strategies):
         code = body.status[s][target_index, periapsis_index]
         out["finite_status"][s].ravel()[:] = code
@@ -126,14 +156,14 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
         geometry = Geometry(body.gm, body.periapsis_radius[0, p], body.target_radius[t, 0],
                             body.apoapsis_radius[t, p],
                             None if body.target_apoapsis is None else body.target_apoapsis[t, 0])
-        result, maneuver = _fly(strategy, body.gm, body.radius, body.soi, geometry, speed[ok], thrusts[ok],
-                                exhaust_speed, mass, steering)
+        result, maneuver = _fly(strategy, body, geometry, speed[ok], thrusts[ok], engine)
         flown = result.outcome == 0
         out["finite_status"][s].ravel()[ok] = _OUTCOME_CODE[result.outcome]
         remaining = np.full(ok.size, float(mass))
         for k in range(out["finite_burn_delta_v"].shape[1]):
             values = dict.fromkeys(("finite_burn_delta_v", "gravity_loss", "burn_duration", "burn_propellant_mass"),
                                    np.zeros(ok.size))
+            values["burn_passes"] = np.zeros(ok.size, dtype=np.int8)
             if k < strategy.burns:
                 burn = result.delta_v[k]
                 spent = remaining * -np.expm1(-burn / exhaust_speed)
@@ -145,11 +175,17 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, exhaust_speed, mass, steeri
                     "burn_propellant_mass": spent,
                     "reached_periapsis_altitude": (result.periapsis_radius[k] - body.radius) / _KM,
                     "reached_apoapsis_altitude": (result.apoapsis_radius[k] - body.radius) / _KM,
+                    "ignition_time": result.ignition[k],
+                    "burn_passes": result.passes[k],
                 }
             for name, value in values.items():
-                out[name][s, k].ravel()[ok] = np.where(flown, value, np.nan)
-        total = np.where(flown, result.delta_v.sum(axis=0), np.nan)
+                out[name][s, k].ravel()[ok] = np.where(flown, value, 0 if name == "burn_passes" else np.nan)
+        total = np.where(flown, result.delta_v.sum(axis=0) + result.trim_delta_v, np.nan)
         out["finite_delta_v"][s].ravel()[ok] = total
+        out["trim_delta_v"][s].ravel()[ok] = np.where(flown, result.trim_delta_v, np.nan)
+        # Where it went and how it was aimed: for failed sequences too (how low the failed flight went).
+        out["lowest_altitude"][s].ravel()[ok] = (result.lowest_radius - body.radius) / _KM
+        out["aimed_periapsis_altitude"][s].ravel()[ok] = (result.approach_periapsis - body.radius) / _KM
         out["finite_propellant_mass"][s].ravel()[ok] = mass * -np.expm1(-total / exhaust_speed)
         out["finite_time_to_orbit"][s].ravel()[ok] = np.where(flown, result.time, np.nan)
     best, saving, _ = pick_best(out["finite_delta_v"], out["finite_propellant_mass"])
@@ -164,7 +200,7 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: Arrays, 
     The brackets go to ``runner`` in fixed groups of ``_BRACKETS_PER_TASK`` (independent of the
     worker count, so the answer is too).
     """
-    exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
+    engine = _Engine.of(config)
     v_grid = config.v_inf * _KM
     reference = STRATEGIES[DIRECT]
     for challenger, strategy in challengers():
@@ -181,6 +217,7 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: Arrays, 
             "low": v_grid[i], "high": v_grid[i + 1], "gap_low": gap[b, i, t, p, f], "gap_high": gap[b, i + 1, t, p, f],
             "gm": np.array([bodies[k].gm for k in b]), "radius": np.array([bodies[k].radius for k in b]),
             "soi": np.array([bodies[k].soi for k in b]),
+            "safe": np.array([bodies[k].safe_radius for k in b]), "bound": np.array([bodies[k].bound for k in b]),
             "periapsis": np.array([bodies[k].periapsis_radius[0, q] for k, q in zip(b, p, strict=True)]),
             "target": np.array([bodies[k].target_radius[q, 0] for k, q in zip(b, t, strict=True)]),
             "apoapsis": np.array([bodies[k].apoapsis_radius[u, q] for k, u, q in zip(b, t, p, strict=True)]),
@@ -188,28 +225,49 @@ def _crossovers(config: SweepConfig, bodies: list[_BodyInputs], arrays: Arrays, 
                                           else bodies[k].target_apoapsis)[q, 0] for k, q in zip(b, t, strict=True)]),
             "thrust": config.thrust[f],
         }
+        # Each strategy's aimed approach periapsis at both ends: the aim inside starts between them;
+        # and its passes per burn, kept inside where both ends agree ("auto" decides elsewhere).
+        for name, index in (("challenger", challenger), ("reference", DIRECT)):
+            ends = (arrays["burn_passes"][index][:, b, i, t, p, f], arrays["burn_passes"][index][:, b, i + 1, t, p, f])
+            brackets[f"{name}_passes"] = np.where((ends[0] == ends[1]).all(axis=0), ends[0], 0).T  # (brackets, burn)
+            aimed = arrays["aimed_periapsis_altitude"][index]
+            radius = brackets["radius"]
+            brackets[f"{name}_low"] = aimed[b, i, t, p, f] * _KM + radius
+            brackets[f"{name}_high"] = aimed[b, i + 1, t, p, f] * _KM + radius
         groups = [slice(start, start + _BRACKETS_PER_TASK) for start in range(0, b.size, _BRACKETS_PER_TASK)]
-        tasks = (delayed(_solve_brackets)({k: v[g] for k, v in brackets.items()}, (strategy, reference),
-                                          exhaust_speed, config.arrival_mass, config.steering) for g in groups)
+        tasks = (delayed(_solve_brackets)({k: v[g] for k, v in brackets.items()}, (strategy, reference), engine)
+                 for g in groups)
         root = np.concatenate(list(runner(tasks)))
         crossover[b, t, p, f] = root / _KM
 
 
-def _solve_brackets(brackets, pair, exhaust_speed, mass, steering) -> np.ndarray:
+def _solve_brackets(brackets, pair, engine: _Engine) -> np.ndarray:
     """Illinois iterations for one group of brackets (run in a worker); ``pair``: (challenger, reference)."""
-    # A circular target is passed as an ellipse with equal apsides here: the same orbit.
-    geometry = Geometry(brackets["gm"], brackets["periapsis"], brackets["target"], brackets["apoapsis"],
-                        brackets["target_apoapsis"])
+
+    def cost(strategy, name, speed, index):
+        """Finite total of ``strategy`` at ``speed`` for brackets ``index``, aimed from between its ends."""
+        share = (speed - brackets["low"][index]) / (brackets["high"][index] - brackets["low"][index])
+        low, high = brackets[f"{name}_low"][index], brackets[f"{name}_high"][index]
+        approach = low + share * (high - low)
+        passes = brackets[f"{name}_passes"][index, :strategy.burns]
+        total = np.full(index.size, np.nan)
+        for agreed, given in ((passes[:, 0] > 0, True), (passes[:, 0] == 0, False)):
+            if agreed.any():
+                points = index[agreed]
+                body = _BodyInputs(brackets["gm"][points], brackets["radius"][points], brackets["soi"][points],
+                                   None, None, None, None, safe_radius=brackets["safe"][points],
+                                   bound=brackets["bound"][points])
+                # A circular target is passed as an ellipse with equal apsides here: the same orbit.
+                geometry = Geometry(*(brackets[key][points] for key in
+                                      ("gm", "periapsis", "target", "apoapsis", "target_apoapsis")))
+                result, _ = _fly(strategy, body, geometry, speed[agreed], brackets["thrust"][points], engine,
+                                 approach[agreed], passes[agreed].T if given else None)
+                total[agreed] = np.where(result.outcome == 0, result.delta_v.sum(axis=0) + result.trim_delta_v,
+                                         np.nan)
+        return total
 
     def gap(speed, index):
-        sub = Geometry(*(value[index] for value in geometry))
-        totals = []
-        for strategy in pair:
-            result, _ = _fly(strategy, brackets["gm"][index], brackets["radius"][index],
-                             brackets["soi"][index], sub, speed, brackets["thrust"][index], exhaust_speed, mass,
-                             steering)
-            totals.append(np.where(result.outcome == 0, result.delta_v.sum(axis=0), np.nan))
-        return totals[0] - totals[1]
+        return cost(pair[0], "challenger", speed, index) - cost(pair[1], "reference", speed, index)
 
     return _illinois(gap, brackets["low"], brackets["high"], brackets["gap_low"], brackets["gap_high"])
 
@@ -232,7 +290,7 @@ def _illinois(function, low, high, f_low, f_high):
         guess = b - fb * (b - a) / (fb - fa)
         value = function(guess, active)
         failed = np.isnan(value)
-        done = ~failed & ((np.abs(value) < _ROOT_TOLERANCE) | (np.abs(b - a) < _ROOT_TOLERANCE))
+        done = ~failed & ((np.abs(value) < _ROOT_COST) | (np.abs(b - a) < _ROOT_WIDTH))
         root[active[done]] = guess[done]
         move_low = np.sign(value) == np.sign(fa)
         last = kept[active]
@@ -387,16 +445,15 @@ def evaluate_finite(config: SweepConfig, plans, workers: int, progress: bool = F
     bodies = [
         _BodyInputs(body.gm, body.radius, body.sphere_of_influence, plan.geometry.periapsis_radius,
                     plan.geometry.target_radius, np.asarray(plan.geometry.apoapsis_radius), plan.status,
-                    plan.geometry.target_apoapsis)
+                    plan.geometry.target_apoapsis, body.safe_periapsis_radius, plan.apoapsis_bound)
         for body, plan in zip(config.bodies, plans, strict=True)
     ]
-    exhaust_speed = config.specific_impulse * STANDARD_GRAVITY
+    engine = _Engine.of(config)
     work = finite_chunks(config, points_per_chunk)
     points = int(np.prod(config.finite_shape))
 
     def arguments(c):
-        return (bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop], config.thrust, exhaust_speed,
-                config.arrival_mass, config.steering, strategies)
+        return bodies[c.body], config.v_inf[c.v_inf_start:c.v_inf_stop], config.thrust, engine, strategies
 
     if scheduler is not None:
         return _evaluate_on_cluster(config, bodies, shapes, work, arguments, scheduler, progress)

@@ -37,6 +37,8 @@ STATUSES: tuple[Status, ...] = (
            "intended orbit's energy is reached"),
     Status("surface_impact", "finite burn: the trajectory, or the orbit finally reached, meets the body's "
            "mean surface"),
+    Status("below_safe_altitude", "finite burn: the sequence, aimed as well as it can be, passes below the body's "
+           "lowest safe periapsis altitude (by more than 0.1 km) somewhere: approach, burns, coasts or trim"),
 )
 
 

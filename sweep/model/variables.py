@@ -15,6 +15,8 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
+from sweep.physics.finite_burn import AIM_TOLERANCE, TRIM_SPLIT
+
 __all__ = [
     "DIMENSIONS",
     "FINITE_REFERENCES",
@@ -52,13 +54,17 @@ When = Literal["always", "plane_change", "thrust", "elliptical_target", "period_
 
 VIS_VIVA = "vis-viva energy relation on patched conics (Curtis 2014, Ch. 2, 6, 8)"
 ROCKET = "ideal rocket equation (Tsiolkovsky), g0 = 9.80665 m s-2"
-FINITE_REFERENCES = "Robbins 1966, AIAA J. 4(8):1417 (impulsive approximation); Curtis 2014 Ch. 6, 11"
+FINITE_REFERENCES = ("Robbins 1966, AIAA J. 4(8):1417 (impulsive approximation); Curtis 2014 Ch. 2-4, 6, 11; "
+                     "Broyden 1965, Math. Comp. 19:577 (aim)")
 FINITE_MODEL = (
     "planar two-body motion with constant thrust and mass flow T/(Isp g0); {steering} steering (thrust "
     "against the velocity for burns that lower the orbital energy, along it for burns that raise it{fixed}); "
-    "each ignition half the impulsive-equivalent burn time before the impulsive burn point (the approach "
-    "periapsis, then the apsis of the orbit reached nearest the impulsive burn radius), at once if that moment "
-    "has passed; each burn ends when the specific energy reaches the intended orbit's; RK4 integration"
+    "each burn ends when the specific energy reaches its intended orbit's; ignition half the impulsive-equivalent "
+    "burn time before the burn's apsis, then aimed: the approach periapsis (and, for a circular intended orbit, the "
+    "ignition time) of the first burn, the ignition time of later burns into circular orbits, so that the orbit "
+    "reached meets the intended apsides within {aim:g} m (Broyden iterations in lockstep); what aiming cannot "
+    "remove is closed by an impulsive trim (vis-viva) included in the total; a capture is split over periapsis "
+    "passes ({passes}); RK4 integration"
 )
 _FREE = ("an orbit of the target's eccentricity e whose periapsis the mission may choose: r_p = 2 mu (1 - e) / "
          "(v_inf^2 (1 + e)), delta-v = v_inf sqrt((1 - e) / 2) (Curtis 2014, Ch. 8, optimal periapsis; for a "
@@ -132,8 +138,13 @@ class Variable:
 
 def finite_model(config) -> str:
     """The finite-burn model in words, for the finite variables' comment."""
+    passes = (f"{config.finite_passes} passes where a longer ellipse than its own is admissible"
+              if config.finite_passes != "auto" else
+              f"automatically: where a sequence fails for a reason shorter burns may cure, or its trim exceeds "
+              f"{TRIM_SPLIT:g} m/s, the burn sweeping the widest arc per pass (above 10 degrees) is split into twice "
+              f"the passes, up to {config.finite_max_passes}")
     return FINITE_MODEL.format(
-        steering=config.steering,
+        steering=config.steering, aim=AIM_TOLERANCE, passes=passes,
         fixed="" if config.steering == "tangential" else ", held fixed in inertial space along the velocity "
         "direction the impulsive burn would have",
     )
@@ -212,7 +223,8 @@ _PLANE_RESULTS = (
              "including the plane change", "plane", when="plane_change"),
 )
 _FINITE_VARIABLES = (
-    Variable("finite_delta_v", _FINITE, "m s-1", "total delta-v with finite burns", "finite", when="thrust",
+    Variable("finite_delta_v", _FINITE, "m s-1", "total delta-v with finite burns, trim included", "finite",
+             when="thrust",
              attrs=_finite_attrs(ancillary_variables="finite_status")),
     Variable("finite_burn_delta_v", _FINITE_PER_BURN, "m s-1", "delta-v of each finite burn, v_e ln(m_before / "
              "m_after)", "finite", when="thrust", attrs=_finite_attrs()),
@@ -226,6 +238,17 @@ _FINITE_VARIABLES = (
              "each finite burn", "finite", when="thrust", attrs=_finite_attrs()),
     Variable("reached_apoapsis_altitude", _FINITE_PER_BURN, "km", "apoapsis altitude of the orbit reached after "
              "each finite burn", "finite", when="thrust", attrs=_finite_attrs()),
+    Variable("ignition_time", _FINITE_PER_BURN, "s", "ignition of each finite burn (its first pass), from the aimed "
+             "approach periapsis passage", "finite", when="thrust", attrs=_finite_attrs()),
+    Variable("burn_passes", _FINITE_PER_BURN, "1", "passes of its apsis each finite burn is split over", "finite",
+             dtype="int8", when="thrust", attrs=_finite_attrs(comment="0 for burns a strategy does not make")),
+    Variable("aimed_periapsis_altitude", _FINITE, "km", "approach periapsis altitude the first finite burn is "
+             "aimed with", "finite", when="thrust", attrs=_finite_attrs()),
+    Variable("trim_delta_v", _FINITE, "m s-1", "impulsive trim from the orbit the finite burns reach to the exact "
+             "target orbit, included in finite_delta_v", "finite", when="thrust", attrs=_finite_attrs()),
+    Variable("lowest_altitude", _FINITE, "km", "lowest altitude reached anywhere in the finite-burn sequence "
+             "(approach, burns, coasts, orbit reached, trim)", "finite", when="thrust",
+             attrs=_finite_attrs(ancillary_variables="finite_status")),
     Variable("finite_propellant_mass", _FINITE, "kg", "propellant for the whole sequence with finite burns",
              "finite", when="thrust", attrs=_finite_attrs()),
     Variable("finite_time_to_orbit", _FINITE, "s", "time from the approach periapsis passage to the end of the last "

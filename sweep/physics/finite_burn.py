@@ -31,6 +31,8 @@ References
    Ch. 6 (finite burns, rocket equation).
 .. [3] E. Hairer, S. P. Norsett and G. Wanner, *Solving Ordinary Differential Equations I*,
    2nd ed. Berlin: Springer, 1993, Sec. II.1 (the classical Runge-Kutta method).
+.. [4] C. G. Broyden, "A class of methods for solving nonlinear simultaneous equations",
+   Mathematics of Computation 19(92):577-593, 1965, doi:10.2307/2003941.
 """
 
 from __future__ import annotations
@@ -43,7 +45,10 @@ from numpy.typing import ArrayLike
 from sweep.physics.conics import hyperbolic_periapsis_speed
 
 __all__ = [
+    "AIM_TOLERANCE",
+    "MAX_PASSES",
     "OUTCOMES",
+    "SAFE_TOLERANCE",
     "FiniteCapture",
     "fly_capture",
     "impulsive_burn_time",
@@ -61,19 +66,36 @@ _MAX_STEPS = 200_000  # a burn still going after this many steps is reported pro
 _LEAST_SPEED = 1e-3  # m/s: floor on the speed dividing tangential thrust (no direction at rest)
 _RESERVE = 1e-3  # fraction of the arrival mass that cannot be burned (propellant_exhausted below it)
 
+AIM_TOLERANCE = 50.0  # m: the aim stops once the orbit reached misses the intended apsides by less
+SAFE_TOLERANCE = 100.0  # m: passing below the safe radius by more than this is below_safe_altitude
+MAX_PASSES = 8  # "auto" splits a burn over at most this many passes of its apsis
+TRIM_SPLIT = 1.0  # m/s: "auto" splits further where the trim would exceed this
+SPLIT_ARC = np.radians(10.0)  # "auto" splits only burns sweeping a wider arc than this per pass
+_AIM_STEPS = 10  # Broyden iterations at most per burn (after the first shot and one difference)
+_ROUND = 1e-3  # intended orbits of smaller eccentricity are aimed as circles (end on them, horizontal)
+
 # Outcome codes of a sequence (index = code).
-OUTCOMES = ("ok", "engine_cannot_capture", "propellant_exhausted", "surface_impact")
+OUTCOMES = ("ok", "engine_cannot_capture", "propellant_exhausted", "surface_impact", "below_safe_altitude")
+# Failures a capture split over more periapsis passes may cure: shorter burns stay closer to the periapsis.
+_SPLIT_FIXES = [OUTCOMES.index(name) for name in ("engine_cannot_capture", "surface_impact", "below_safe_altitude")]
 
 
 class FiniteCapture(NamedTuple):
     """Per-burn arrays have shape (burns, n); per-sequence arrays shape (n,). SI units."""
 
-    delta_v: np.ndarray  # m/s, v_e ln(m_before / m_after) of each burn
+    delta_v: np.ndarray  # m/s, v_e ln(m_before / m_after) of each burn (a split capture: its passes summed)
     duration: np.ndarray  # s
-    periapsis_radius: np.ndarray  # m, of the orbit reached after each burn
+    periapsis_radius: np.ndarray  # m, of the orbit reached after each burn (before the trim)
     apoapsis_radius: np.ndarray  # m
-    time: np.ndarray  # s, from the approach periapsis passage to the end of the last burn
+    time: np.ndarray  # s, from the aimed approach periapsis passage to the end of the last burn
     outcome: np.ndarray  # int8, index into OUTCOMES
+    ignition: np.ndarray  # s, (burns, n): each burn's ignition from the approach periapsis passage
+    trim_delta_v: np.ndarray  # m/s, impulsive trim from the orbit reached to the exact target orbit
+    lowest_radius: np.ndarray  # m, lowest radius reached anywhere in the sequence (trim included)
+    approach_periapsis: np.ndarray  # m, the approach periapsis the first burn is aimed with
+    passes: np.ndarray  # int8, (burns, n): passes of its apsis each burn is split over
+    pass_ignition: np.ndarray  # s, (passes, n): ignition of each pass of the capture (NaN beyond)
+    pass_delta_v: np.ndarray  # m/s, (passes, n)
 
 
 def impulsive_burn_time(delta_v: ArrayLike, mass: ArrayLike, thrust: ArrayLike, exhaust_speed: ArrayLike):
@@ -260,12 +282,14 @@ def _solve_kepler(mean_anomaly, eccentricity):
     return anomaly
 
 
-def _coast_to_ignition(state, gm, burn_radius, half_burn):
+def _coast_to_ignition(state, gm, burn_radius, lead):
     """
-    Coast along the (elliptic) orbit to ``half_burn`` before the apsis nearest ``burn_radius``.
+    Coast along the (elliptic) orbit to ``lead`` seconds before the apsis nearest ``burn_radius``
+    (after it, for a negative ``lead``); where that moment has passed, ignite at once.
 
-    Returns the state at ignition, the coast time, and the unit velocity direction at that
-    apsis (for inertially fixed steering). Near-circular orbits (e < 1e-9) ignite at once.
+    Returns the state at ignition, the coast time, the unit velocity direction at that apsis
+    (for inertially fixed steering) and whether the coast passes the periapsis. Near-circular
+    orbits (e < 1e-9) ignite at once.
     """
     x, y, vx, vy = state
     r = np.sqrt(x * x + y * y)
@@ -285,7 +309,8 @@ def _coast_to_ignition(state, gm, burn_radius, half_burn):
     at_apoapsis = np.abs(a * (1 + e) - burn_radius) < np.abs(a * (1 - e) - burn_radius)
     mean_apsis = np.where(at_apoapsis, np.pi, 0.0)
     to_apsis = np.mod(mean_apsis - mean_now, 2.0 * np.pi) / motion
-    coast = np.where(circular, 0.0, np.maximum(to_apsis - half_burn, 0.0))
+    coast = np.where(circular, 0.0, np.maximum(to_apsis - lead, 0.0))
+    passed = ~circular & (np.mod(mean_now, 2.0 * np.pi) + motion * coast >= 2.0 * np.pi)
     eccentric = _solve_kepler(mean_now + motion * coast, e)
     cos_e, sin_e = np.cos(eccentric), np.sin(eccentric)
     px, py = a * (cos_e - e), a * root * sin_e
@@ -297,24 +322,28 @@ def _coast_to_ignition(state, gm, burn_radius, half_burn):
     new = tuple(np.where(circular, s, n) for s, n in zip(state, new, strict=True))
     apsis_angle = omega + np.where(at_apoapsis, np.pi, 0.0)
     direction = (-np.sin(apsis_angle), np.cos(apsis_angle))
-    return new, coast, direction
+    return new, coast, direction, passed
 
 
 def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.0):
     """
     Integrate one burn for every point until its energy reaches ``target_energy``.
 
-    Returns the final state, the burn duration and an outcome code per point. The points
-    still burning are kept in compact working arrays, trimmed only on steps where some finish.
+    Returns the final state (the state where it stopped, for a failed point), the burn
+    duration, an outcome code and the lowest radius passed per point: the smallest radius at
+    the step ends and, where the radial velocity turns from inward to outward within a step,
+    the osculating periapsis at that step's start. The points still burning are kept in
+    compact working arrays, trimmed only on steps where some finish.
     """
     x, y, vx, vy = (np.array(s, dtype=float) for s in state)
     duration = np.zeros(x.size)
     outcome = np.zeros(x.size, dtype=np.int8)
+    lowest = np.sqrt(x * x + y * y)
     ids = np.flatnonzero(np.abs(target_energy - _energy(x, y, vx, vy, p.gm)) > 1e-12 * np.abs(target_energy))
     burn_step = np.maximum(expected_time, 1e-3) / STEPS_PER_BURN
     q = p.take(ids)
     work = (x[ids], y[ids], vx[ids], vy[ids])
-    tau, goal, burn_step = np.zeros(ids.size), target_energy[ids], burn_step[ids]
+    tau, goal, burn_step, low = np.zeros(ids.size), target_energy[ids], burn_step[ids], lowest[ids]
     soi, surface, max_time = (limits[key][ids] for key in ("soi", "body_radius", "max_time"))
     for _ in range(_MAX_STEPS):
         if ids.size == 0:
@@ -326,6 +355,10 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
         crossed = q.sign * (new_energy - goal) >= 0.0
         nx, ny, nvx, nvy = new
         r = np.sqrt(nx * nx + ny * ny)
+        turned = (work[0] * work[2] + work[1] * work[3] < 0.0) & (nx * nvx + ny * nvy >= 0.0)
+        low = np.where(crossed, low, np.minimum(low, r))  # a crossing step is cut short: its end counts
+        if turned.any():
+            low[turned] = np.minimum(low[turned], _apsides(*(s[turned] for s in work), q.gm[turned])[0])
         escaped = ~crossed & (r > soi) & (nx * nvx + ny * nvy > 0)
         exhausted = ~crossed & ~escaped & (tau + dt >= max_time)
         impact = ~crossed & ~escaped & ~exhausted & (r < surface)
@@ -337,18 +370,24 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
                 for target, values in zip((x, y, vx, vy), end, strict=True):
                     target[ids[c]] = values
                 duration[ids[c]] = tau[c] + step
-            for name, failed in (("engine_cannot_capture", escaped), ("propellant_exhausted", exhausted),
-                                 ("surface_impact", impact)):
-                outcome[ids[failed]] = OUTCOMES.index(name)
-                duration[ids[failed]] = tau[failed] + dt[failed]
+                low[c] = np.minimum(low[c], np.hypot(end[0], end[1]))
+            failed = np.flatnonzero(done & ~crossed)
+            for target, values in zip((x, y, vx, vy), new, strict=True):
+                target[ids[failed]] = values[failed]
+            for name, mask in (("engine_cannot_capture", escaped), ("propellant_exhausted", exhausted),
+                               ("surface_impact", impact)):
+                outcome[ids[mask]] = OUTCOMES.index(name)
+                duration[ids[mask]] = tau[mask] + dt[mask]
+            lowest[ids[done]] = low[done]
             keep = ~done
             ids, q, tau, dt, goal, burn_step = ids[keep], q.take(keep), tau[keep], dt[keep], goal[keep], burn_step[keep]
-            soi, surface, max_time = soi[keep], surface[keep], max_time[keep]
+            soi, surface, max_time, low = soi[keep], surface[keep], max_time[keep], low[keep]
             new = tuple(s[keep] for s in new)
         work = new
         tau = tau + dt
     outcome[ids] = OUTCOMES.index("propellant_exhausted")  # still burning at the step cap
-    return (x, y, vx, vy), duration, outcome
+    lowest[ids] = low
+    return (x, y, vx, vy), duration, outcome, lowest
 
 
 def _finish(start, tau, dt, goal, end_energy, q: _Engine):
@@ -370,6 +409,344 @@ def _energy_rate(state, tau, p: _Engine):
     return thrust_acceleration * (p.ux * vx + p.uy * vy)
 
 
+def _eccentricity_vector(x, y, vx, vy, gm):
+    """The eccentricity vector ([2]_ Ch. 4) resolved along and across the position: (along, across)."""
+    r = np.sqrt(x * x + y * y)
+    v2 = vx * vx + vy * vy
+    radial = x * vx + y * vy
+    ex = ((v2 - gm / r) * x - radial * vx) / gm
+    ey = ((v2 - gm / r) * y - radial * vy) / gm
+    return (ex * x + ey * y) / r, (ey * x - ex * y) / r
+
+
+class _Points(NamedTuple):
+    """Per-point constants of a batch (arrays of equal length), SI."""
+
+    gm: np.ndarray
+    body_radius: np.ndarray
+    soi: np.ndarray
+    thrust: np.ndarray
+    exhaust_speed: np.ndarray
+    reserve: np.ndarray  # kg of the arrival mass that cannot be burned
+
+    def take(self, index) -> _Points:
+        return _Points(*(value[index] for value in self))
+
+
+_STATE = ("x", "y", "vx", "vy")
+
+
+def _leg(flight, index, p: _Points, radius, energy, impulse, offset, first, steering, refinement):
+    """
+    Coast to ignition and fly one burn, for points ``index`` of ``flight`` (a dict of per-point
+    arrays: state, clock, mass, lowest radius; updated in place). When ``first``, the state is
+    the approach periapsis and the clock zero. Ignition comes half the impulsive-equivalent burn
+    time before the apsis, moved later by ``offset`` [s]. Returns delta-v, duration, ignition
+    time and outcome of the burn for those points.
+    """
+    state = tuple(flight[k][index] for k in _STATE)
+    mass, lowest = flight["mass"][index], flight["lowest"][index]
+    expected = impulsive_burn_time(impulse, mass, p.thrust, p.exhaust_speed)
+    lead = 0.5 * expected - offset
+    if first:
+        start = _coast_back(state, lead, p.gm)
+        ignition = -lead
+        # Ignited after the approach periapsis: the approach passed it first.
+        lowest = np.where(ignition > 0.0, np.minimum(lowest, np.hypot(state[0], state[1])), lowest)
+        direction = (np.zeros(index.size), np.ones(index.size))  # velocity direction at the approach periapsis
+    else:
+        moved, coast, direction, passed = _coast_to_ignition(state, p.gm, radius, lead)
+        needed = np.abs(energy - _energy(*state, p.gm)) > 1e-12 * np.abs(energy)
+        start = tuple(np.where(needed, m, s) for m, s in zip(moved, state, strict=True))  # no burn: no wait
+        ignition = flight["clock"][index] + np.where(needed, coast, 0.0)
+        lowest = np.where(needed & passed, np.minimum(lowest, _apsides(*state, p.gm)[0]), lowest)
+    sign = np.where(energy >= _energy(*start, p.gm), 1.0, -1.0)
+    flow = p.thrust / p.exhaust_speed
+    engine = _Engine(p.gm, p.thrust, mass, flow, sign)
+    if steering == "inertial":
+        engine = engine._replace(ux=sign * direction[0], uy=sign * direction[1])
+    limits = {"soi": p.soi, "body_radius": p.body_radius, "max_time": (mass - p.reserve) / flow}
+    end, duration, outcome, low = _burn(start, engine, energy, expected, limits, refinement)
+    after = mass - flow * duration
+    for key, value in zip(_STATE, end, strict=True):
+        flight[key][index] = value
+    flight["clock"][index] = ignition + duration
+    flight["mass"][index] = after
+    flight["lowest"][index] = np.minimum(lowest, low)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        delta_v = p.exhaust_speed * np.log(mass / after)
+    return delta_v, duration, ignition, outcome
+
+
+def _miss(flight, gm, periapsis, apoapsis, at_periapsis, outcome):
+    """
+    How far the orbit reached misses the intended one, in metres: (along, across), shape (n, 2).
+
+    An ellipse is met when the apsis on the burn's side has its intended radius (``along``;
+    ``across`` is then zero: the apse line may lie anywhere). A circle (eccentricity below
+    ``_ROUND``) needs the burn to end on it, horizontal: ``along`` is minus the semi-major
+    axis times the eccentricity along the position (positive when the burn ended high),
+    ``across`` the same across it. A surface impact gives its osculating periapsis minus the
+    intended one (negative), so an aim that sank too low climbs back; other failures give NaN.
+    """
+    state = tuple(flight[k] for k in _STATE)
+    reached_periapsis, reached_apoapsis = _apsides(*state, gm)
+    target_e = (apoapsis - periapsis) / (apoapsis + periapsis)
+    axis = 0.5 * (periapsis + apoapsis)
+    along_e, across_e = _eccentricity_vector(*state, gm)
+    round_ = target_e < _ROUND
+    sign = np.where(at_periapsis, 1.0, -1.0)
+    along = np.where(round_, -axis * (along_e - sign * target_e),
+                     np.where(at_periapsis, reached_periapsis - periapsis, reached_apoapsis - apoapsis))
+    across = np.where(round_, axis * across_e, 0.0)
+    impact = outcome == OUTCOMES.index("surface_impact")
+    ok = outcome == 0
+    along = np.where(ok, along, np.where(impact, reached_periapsis - periapsis, np.nan))
+    across = np.where(ok | impact, np.where(ok, across, 0.0), np.nan)
+    return np.stack([along, across], axis=1)
+
+
+def _better(new_miss, new_outcome, old_miss, old_outcome):
+    """Where a flight beats the best so far: flown beats failed, then the smaller miss."""
+    new_ok, old_ok = new_outcome == 0, old_outcome == 0
+    smaller = np.nan_to_num(np.abs(new_miss), nan=np.inf).max(axis=1) < \
+        np.nan_to_num(np.abs(old_miss), nan=np.inf).max(axis=1)
+    return (new_ok & ~old_ok) | ((new_ok == old_ok) & smaller)
+
+
+def _take(flight, index):
+    return {key: value[..., index] for key, value in flight.items()}
+
+
+def _put(into, where, flight, source):
+    for key, value in flight.items():
+        into[key][..., where] = value[..., source]
+
+
+def _aim(fly, start, free, first_step, limit, lower):
+    """
+    Aim by Broyden's method, all points in lockstep ([4]_): find ``x`` (n, 2) whose flight
+    ``fly(x, index) -> (flight dict, misses (m, 2))`` misses by at most ``AIM_TOLERANCE`` in
+    each coordinate a point may move (``free``, (n, 2) bool). The first Jacobian is the
+    identity but for the second column, measured by a difference of ``first_step`` (n,) where
+    that coordinate is free. Steps are clipped to ``limit`` (n, 2); ``x`` stays above
+    ``lower`` (n, 2). A step whose flight fails (NaN miss) is halved and tried again. Returns
+    the best flight found (flown beats failed, then the smaller miss), its ``x`` and misses.
+    """
+    n = start.shape[0]
+    x = start.copy()
+    flight, miss = fly(x, np.arange(n))
+    best, best_x, best_miss = flight, x.copy(), miss.copy()
+    jacobian = np.zeros((n, 2, 2))
+    jacobian[:, 0, 0] = jacobian[:, 1, 1] = 1.0
+
+    def open_(index):
+        return ~np.isnan(miss[index]).any(axis=1) & (np.where(free[index], np.abs(miss[index]), 0.0)
+                                                     > AIM_TOLERANCE).any(axis=1)
+
+    index = np.flatnonzero(free[:, 1] & open_(np.arange(n)))
+    if index.size:
+        trial = x[index].copy()
+        trial[:, 1] += first_step[index]
+        shifted_flight, shifted = fly(trial, index)
+        slope = (shifted - miss[index]) / first_step[index, None]
+        usable = np.isfinite(slope).all(axis=1) & (np.abs(slope[:, 1]) > 1e-6)
+        jacobian[index[usable], :, 1] = slope[usable]
+    active = np.flatnonzero(open_(np.arange(n)))
+    halving = np.zeros((n, 2))
+    for _ in range(_AIM_STEPS):
+        if active.size == 0:
+            break
+        j = jacobian[active]
+        f = np.where(free[active], miss[active], 0.0)
+        j[:, 0, 1] = np.where(free[active, 1], j[:, 0, 1], 0.0)
+        j[:, 1, 0] = np.where(free[active, 1], j[:, 1, 0], 0.0)
+        j[:, 1, 1] = np.where(free[active, 1], j[:, 1, 1], 1.0)
+        det = j[:, 0, 0] * j[:, 1, 1] - j[:, 0, 1] * j[:, 1, 0]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = -np.stack([j[:, 1, 1] * f[:, 0] - j[:, 0, 1] * f[:, 1],
+                                j[:, 0, 0] * f[:, 1] - j[:, 1, 0] * f[:, 0]], axis=1) / det[:, None]
+        retry = (halving[active] != 0.0).any(axis=1)
+        step = np.where(retry[:, None], 0.5 * halving[active], newton)
+        step = np.where(free[active] & np.isfinite(step), np.clip(step, -limit[active], limit[active]), 0.0)
+        trial = np.maximum(x[active] + step, lower[active])
+        step = trial - x[active]
+        flight, new = fly(trial, active)
+        failed = np.isnan(new).any(axis=1) | ~free[active].any(axis=1)
+        halving[active] = np.where(failed[:, None], step, 0.0)
+        ok = np.flatnonzero(~failed)
+        index = active[ok]
+        if index.size:
+            moved, change = step[ok], new[ok] - miss[index]
+            size = np.einsum("ij,ij->i", moved, moved)
+            predicted = np.einsum("ijk,ik->ij", jacobian[index], moved)
+            correction = (change - predicted) / np.where(size > 0, size, np.inf)[:, None]
+            jacobian[index] += correction[:, :, None] * moved[:, None, :]
+            x[index], miss[index] = trial[ok], new[ok]
+            better = _better(new[ok], flight["outcome"][ok], best_miss[index], best["outcome"][index])
+            _put(best, index[better], flight, ok[better])
+            best_x[index[better]], best_miss[index[better]] = x[index[better]], miss[index[better]]
+        active = active[failed | open_(active)]
+    return best, best_x, best_miss
+
+
+def _trim(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
+    r"""
+    The impulsive trim from the orbit reached to the target orbit (coplanar, any orientation):
+    the cheaper of the two-burn orders of apsis changes, each costed with vis-viva
+    :math:`v^2 = \mu (2/r - 1/a)` ([2]_ Ch. 2): move the far apsis at the reached periapsis,
+    then the other at the new apsis; or move the periapsis at the reached apoapsis first.
+
+    Returns the delta-v [m/s] and the lowest periapsis of the orbits flown on the way [m].
+    """
+    def speed(r, r1, r2):
+        return np.sqrt(np.maximum(gm * (2.0 / r - 2.0 / (r1 + r2)), 0.0))
+
+    first = (np.abs(speed(periapsis, periapsis, target_apoapsis) - speed(periapsis, periapsis, apoapsis))
+             + np.abs(speed(target_apoapsis, target_periapsis, target_apoapsis)
+                      - speed(target_apoapsis, periapsis, target_apoapsis)))
+    second = (np.abs(speed(apoapsis, target_periapsis, apoapsis) - speed(apoapsis, periapsis, apoapsis))
+              + np.abs(speed(target_periapsis, target_periapsis, target_apoapsis)
+                       - speed(target_periapsis, target_periapsis, apoapsis)))
+    lowest = np.where(first <= second, np.minimum(periapsis, target_apoapsis), np.minimum(target_periapsis, apoapsis))
+    return np.minimum(first, second), np.minimum(lowest, target_periapsis)
+
+
+def _speed_on(gm, radius, periapsis, apoapsis):
+    """Vis-viva speed at ``radius`` on the orbit of those apsides ([2]_ Ch. 2)."""
+    return np.sqrt(np.maximum(gm * (2.0 / radius - 2.0 / (periapsis + apoapsis)), 0.0))
+
+
+class _Plan(NamedTuple):
+    """Where and how far each burn goes, per point, and over how many passes (SI)."""
+
+    radius: list  # burn radius per burn
+    orbits: list  # (periapsis, apoapsis) intended after each burn
+    before: list  # speed at the burn radius before each burn (the approach's, for the capture)
+    after: list  # speed there on the intended orbit
+    split: np.ndarray  # speed at the capture periapsis on the long ellipse a split capture enters first
+    counts: np.ndarray  # (burns, n) int: passes of each burn
+
+    def pass_target(self, k, j, points, gm):
+        """Energy [J/kg] and impulsive delta-v [m/s] of pass ``j`` of burn ``k`` for ``points``."""
+        count = self.counts[k][points]
+        before, after, radius = self.before[k][points], self.after[k][points], self.radius[k][points]
+
+        def end(j_):
+            shares = before + (after - before) * (j_ + 1) / count
+            if k > 0:
+                return shares
+            # The capture's first pass enters the long ellipse at least; the rest share what remains.
+            first = np.minimum(before + (after - before) / count, self.split[points])
+            rest = first + (after - first) * j_ / np.maximum(count - 1, 1)
+            return np.where(count == 1, after, np.where(j_ == 0, first, rest))
+
+        speed = end(j)
+        start = before if j == 0 else end(j - 1)
+        last = j == count - 1
+        energy = np.where(last, -gm / (self.orbits[k][0][points] + self.orbits[k][1][points]),
+                          0.5 * speed * speed - gm / radius)
+        return energy, np.abs(start - speed)
+
+
+def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refinement, safe_radius, aim):
+    """The whole sequence of ``plan`` for every point of ``p``: aimed, trimmed, checked (see :func:`fly_capture`)."""
+    n = v_inf.size
+    burns = len(plan.radius)
+    round_ = [(a - r) / (a + r) < _ROUND for r, a in plan.orbits]
+    pass_keys = ("pass_delta_v", "pass_duration", "pass_ignition")
+
+    def fly_burn(k, flight, index, offset):
+        """All passes of burn ``k`` for entries ``index`` of ``flight`` (global points ``points``)."""
+        points = flight["point"][index]
+        most = int(plan.counts[k].max())  # the same for every subset: results of trials merge row for row
+        for key in pass_keys:
+            flight[key] = np.full((most, flight["x"].size), np.nan)
+        alive = index
+        for j in range(most):
+            alive = alive[plan.counts[k][flight["point"][alive]] > j]
+            if alive.size == 0:
+                break
+            pts = flight["point"][alive]
+            energy, impulse = plan.pass_target(k, j, pts, p.gm[pts])
+            last = plan.counts[k][pts] == j + 1
+            values = _leg(flight, alive, p.take(pts), plan.radius[k][pts], energy, impulse,
+                          np.where(last, offset[np.searchsorted(index, alive)], 0.0), k == 0 and j == 0,
+                          steering, refinement)
+            for key, value in zip(pass_keys, values, strict=False):
+                flight[key][j, alive] = value
+            flight["outcome"][alive] = values[3]
+            alive = alive[values[3] == 0]
+        at_periapsis = np.abs(plan.radius[k][points] - plan.orbits[k][0][points]) <= \
+            np.abs(plan.radius[k][points] - plan.orbits[k][1][points])
+        return _miss({key: flight[key][index] for key in _STATE}, p.gm[points], plan.orbits[k][0][points],
+                     plan.orbits[k][1][points], at_periapsis, flight["outcome"][index])
+
+    def capture(x, index):
+        speed = hyperbolic_periapsis_speed(v_inf[index], p.gm[index], x[:, 0])
+        flight = {"point": index, "x": x[:, 0].copy(), "y": np.zeros(index.size), "vx": np.zeros(index.size),
+                  "vy": speed, "clock": np.zeros(index.size), "mass": mass[index].copy(),
+                  "lowest": np.full(index.size, np.inf), "outcome": np.zeros(index.size, dtype=np.int8)}
+        miss = fly_burn(0, flight, np.arange(index.size), x[:, 1] / speed)
+        return flight, miss
+
+    free = np.zeros((n, 2), dtype=bool)
+    free[:, 0] = aim
+    free[:, 1] = aim & round_[0]
+    approach_speed = hyperbolic_periapsis_speed(v_inf, p.gm, approach)
+    first_pass = plan.pass_target(0, 0, np.arange(n), p.gm)[1]
+    arc = approach_speed * impulsive_burn_time(first_pass, mass, p.thrust, p.exhaust_speed)  # m along the track
+    limit = np.stack([0.5 * (approach - p.body_radius) + 1e4, arc + 1e3], axis=1)
+    lower = np.stack([p.body_radius + 1.0, np.full(n, -np.inf)], axis=1)
+    flight, x, _ = _aim(capture, np.stack([approach, np.zeros(n)], axis=1), free, 0.05 * arc + 1.0, limit, lower)
+    out = {key: np.full((burns, n), np.nan) for key in ("delta_v", "duration", "ignition", "periapsis", "apoapsis")}
+    out["approach"] = x[:, 0]
+    out["pass_ignition"], out["pass_delta_v"] = flight["pass_ignition"], flight["pass_delta_v"]
+
+    def record(k, flight, points):
+        out["delta_v"][k, points] = np.sum(flight["pass_delta_v"], axis=0)
+        out["duration"][k, points] = np.sum(flight["pass_duration"], axis=0)
+        out["ignition"][k, points] = flight["pass_ignition"][0]
+        out["periapsis"][k, points], out["apoapsis"][k, points] = _apsides(*(flight[s] for s in _STATE),
+                                                                          p.gm[points])
+
+    record(0, flight, np.arange(n))
+    final = {key: flight[key] for key in ("x", "y", "vx", "vy", "clock", "mass", "lowest", "outcome")}
+    for k in range(1, burns):
+        alive = np.flatnonzero(final["outcome"] == 0)
+        if alive.size == 0:
+            break
+        before = {key: value[alive] for key, value in final.items()}
+        before["point"] = alive
+        speed_k = np.maximum(plan.before[k][alive], 1.0)
+
+        def later(x, index, k=k, before=before, speed_k=speed_k):
+            flight = {key: value[index].copy() for key, value in before.items()}
+            return flight, fly_burn(k, flight, np.arange(index.size), x[:, 1] / speed_k[index])
+
+        free_k = np.zeros((alive.size, 2), dtype=bool)
+        free_k[:, 1] = aim & round_[k][alive]
+        first_pass = plan.pass_target(k, 0, alive, p.gm[alive])[1]
+        arc_k = speed_k * impulsive_burn_time(first_pass, before["mass"], p.thrust[alive], p.exhaust_speed[alive])
+        leg, _, _ = _aim(later, np.zeros((alive.size, 2)), free_k, 0.05 * arc_k + 1.0,
+                         np.stack([np.zeros(alive.size), arc_k + 1e3], axis=1), np.full((alive.size, 2), -np.inf))
+        for key in final:
+            final[key][alive] = leg[key]
+        record(k, leg, alive)
+    outcome = final["outcome"]
+    ok = outcome == 0
+    trim, trim_lowest = _trim(p.gm, out["periapsis"][-1], out["apoapsis"][-1], *plan.orbits[-1])
+    lowest = np.minimum(final["lowest"], np.minimum(out["periapsis"][-1], trim_lowest))
+    outcome[ok & (out["periapsis"][-1] < p.body_radius)] = OUTCOMES.index("surface_impact")
+    outcome[(outcome == 0) & (lowest < safe_radius - SAFE_TOLERANCE)] = OUTCOMES.index("below_safe_altitude")
+    failed = outcome != 0
+    for key in ("delta_v", "duration", "ignition", "pass_ignition", "pass_delta_v"):
+        out[key][:, failed] = np.nan
+    out.update(time=np.where(failed, np.nan, final["clock"]), outcome=outcome, trim=np.where(failed, np.nan, trim),
+               lowest=lowest, passes=plan.counts.astype(np.int8))
+    return out
+
+
 def fly_capture(
     gm: ArrayLike,
     body_radius: ArrayLike,
@@ -377,16 +754,22 @@ def fly_capture(
     v_inf: ArrayLike,
     periapsis_radius: ArrayLike,
     burn_radii: list[ArrayLike],
-    target_energies: list[ArrayLike],
+    orbits: list[tuple[ArrayLike, ArrayLike]],
     impulsive_delta_v: list[ArrayLike],
     thrust: ArrayLike,
     exhaust_speed: ArrayLike,
     initial_mass: ArrayLike,
     steering: str = "tangential",
     refinement: float = 1.0,
+    *,
+    safe_radius: ArrayLike | None = None,
+    split_apoapsis: ArrayLike | None = None,
+    passes: int | str | ArrayLike = "auto",
+    max_passes: int = MAX_PASSES,
+    aim: bool = True,
 ) -> FiniteCapture:
     r"""
-    Fly a capture sequence with a finite-thrust engine, for a batch of points.
+    Fly a capture sequence with a finite-thrust engine, aimed at its orbits, for a batch of points.
 
     Parameters
     ----------
@@ -400,11 +783,12 @@ def fly_capture(
     v_inf : numeric
         Arrival (hyperbolic excess) speed. [m/s]
     periapsis_radius : numeric
-        Periapsis radius of the approach hyperbola. [m]
+        Periapsis radius of the impulsive approach hyperbola: where the aim starts. [m]
     burn_radii : list of numeric
         For each burn, the radius where the impulsive burn would be made. [m]
-    target_energies : list of numeric
-        For each burn, the specific energy of the intended orbit after it. [J/kg]
+    orbits : list of (numeric, numeric)
+        For each burn, the periapsis and apoapsis radius of the intended orbit after it (the
+        last one is the target orbit). The first burn is made at its orbit's periapsis. [m]
     impulsive_delta_v : list of numeric
         For each burn, its impulsive delta-v (sets the centring of the ignition). [m/s]
     thrust : numeric
@@ -418,89 +802,121 @@ def fly_capture(
     refinement : float
         Divides every RK4 step (1: the sweep's setting, accurate to a few mm/s; larger values
         resolve losses far below that, for convergence studies).
+    safe_radius : numeric, optional
+        Lowest safe periapsis radius: a sequence passing below it (by more than
+        ``SAFE_TOLERANCE``) is ``below_safe_altitude``. Default: ``body_radius``. [m]
+    split_apoapsis : numeric, optional
+        Apoapsis radius of the long ellipse a capture split over several periapsis passes
+        first enters. Without it the capture is never split. [m]
+    passes : int, "auto" or array of int
+        Periapsis passes the capture burn is split over (where ``split_apoapsis`` allows);
+        ``"auto"``: chosen per point (see the module notes); an array broadcasting to
+        (burns, \*shape): the passes of every burn, as given.
+    max_passes : int
+        The most passes ``"auto"`` tries.
+    aim : bool
+        Aim the burns (default). False flies every burn centred on its impulsive point from
+        the impulsive approach periapsis, as the model did before aiming; kept for studies of
+        the integrator alone.
 
     Returns
     -------
     FiniteCapture
-        Per burn: delta-v :math:`v_e \ln(m_0/m_1)` [m/s], duration [s], periapsis and
-        apoapsis radius of the orbit reached [m]; per sequence: time from the approach
-        periapsis passage to the end of the last burn [s] and an outcome code (``OUTCOMES``).
-        Burns after a failure are NaN.
+        Per burn: delta-v :math:`v_e \ln(m_0/m_1)` [m/s], duration [s], ignition time from the
+        aimed approach periapsis passage [s] (the first pass's for a split capture), periapsis
+        and apoapsis radius of the orbit reached [m]; per sequence: time from the approach
+        periapsis passage to the end of the last burn [s], an outcome code (``OUTCOMES``), the
+        impulsive trim to the exact target orbit [m/s], the lowest radius reached [m], the
+        aimed approach periapsis radius [m] and the passes of the capture. Burns and trim of a
+        failed sequence are NaN; its lowest radius and approach are those of the flight that
+        failed.
 
     Notes
     -----
-    See the module notes for the model, the steering law and the centring rule. The gravity
-    loss of a burn is its delta-v here minus its impulsive delta-v.
+    See the module notes for the model, the aim, the trim and the split captures.
     """
     if steering not in ("tangential", "inertial"):
         raise ValueError(f"steering must be 'tangential' or 'inertial', got {steering!r}")
+    auto = isinstance(passes, str) and passes == "auto"
+    given = not isinstance(passes, str | int)
+    if given:
+        if np.any(np.asarray(passes) < 1):
+            raise ValueError("passes must be positive")
+    elif not auto and (isinstance(passes, bool) or not isinstance(passes, int) or passes < 1):
+        raise ValueError(f"passes must be a positive integer or 'auto', got {passes!r}")
     arrays = np.broadcast_arrays(
         *(np.asarray(a, dtype=float) for a in (gm, body_radius, soi_radius, v_inf, periapsis_radius,
                                                 thrust, exhaust_speed, initial_mass))
     )
-    gm, body_radius, soi_radius, v_inf, periapsis_radius, thrust, exhaust_speed, mass = (
-        np.ravel(a).copy() for a in arrays
-    )
     shape = arrays[0].shape
-    n = gm.size
-    burns = len(burn_radii)
-    flat = [[np.ravel(np.broadcast_to(np.asarray(a, dtype=float), shape)) for a in group]
-            for group in (burn_radii, target_energies, impulsive_delta_v)]
-    out_dv, out_time, out_peri, out_apo = (np.full((burns, n), np.nan) for _ in range(4))
-    outcome = np.zeros(n, dtype=np.int8)
-    mass_flow = thrust / exhaust_speed
-    state = (periapsis_radius, np.zeros(n), np.zeros(n), hyperbolic_periapsis_speed(v_inf, gm, periapsis_radius))
-    clock = np.zeros(n)
-    reserve = _RESERVE * mass  # the burns may spend all of the arrival mass but this
-    for k in range(burns):
-        radius_k, energy_k, impulse_k = (group[k] for group in flat)
-        expected = impulsive_burn_time(impulse_k, mass, thrust, exhaust_speed)
-        alive = np.flatnonzero(outcome == 0)
-        if k == 0:
-            state = _coast_back(state, 0.5 * expected, gm)
-            clock = clock - 0.5 * expected
-            direction = (np.zeros(n), np.ones(n))  # velocity direction at the approach periapsis
-        else:
-            direction = (np.zeros(n), np.ones(n))
-            moved, coast, towards = _coast_to_ignition(tuple(s[alive] for s in state), gm[alive],
-                                                       radius_k[alive], 0.5 * expected[alive])
-            state = tuple(np.array(s) for s in state)
-            needed = np.abs(energy_k[alive] - _energy(*moved, gm[alive])) > 1e-12 * np.abs(energy_k[alive])
-            for target, values, old in zip(state, moved, (s[alive] for s in state), strict=True):
-                target[alive] = np.where(needed, values, old)  # no burn needed: no wait for it
-            clock[alive] = clock[alive] + np.where(needed, coast, 0.0)
-            for target, values in zip(direction, towards, strict=True):
-                target[alive] = values
-        sign = np.where(energy_k >= _energy(*state, gm), 1.0, -1.0)
-        engine = _Engine(gm, thrust, mass, mass_flow, sign)
-        if steering == "inertial":
-            engine = engine._replace(ux=sign * direction[0], uy=sign * direction[1])
-        limits = {"soi": soi_radius[alive], "body_radius": body_radius[alive],
-                  "max_time": (mass[alive] - reserve[alive]) / mass_flow[alive]}
-        end, duration, code = _burn(tuple(s[alive] for s in state), engine.take(alive), energy_k[alive],
-                                    expected[alive], limits, refinement)
-        state = tuple(np.array(s) for s in state)
-        for target, values in zip(state, end, strict=True):
-            target[alive] = values
-        outcome[alive] = code
-        clock[alive] = clock[alive] + duration
-        ok = alive[code == 0]
-        spent = mass_flow[ok] * duration[code == 0]
-        out_dv[k, ok] = exhaust_speed[ok] * np.log(mass[ok] / (mass[ok] - spent))
-        out_time[k, ok] = duration[code == 0]
-        mass[ok] = mass[ok] - spent
-        periapsis, apoapsis = _apsides(*(s[ok] for s in state), gm[ok])
-        out_peri[k, ok], out_apo[k, ok] = periapsis, apoapsis
-    # The craft leaves each intermediate orbit before its periapsis comes round again (the next
-    # burn is at the far apsis, or centred on that periapsis and checked during the burn), so
-    # only the final orbit is checked against the surface.
-    final = np.flatnonzero(outcome == 0)
-    outcome[final[out_peri[-1, final] < body_radius[final]]] = OUTCOMES.index("surface_impact")
-    failed = outcome != 0
-    out_dv[:, failed] = np.nan
-    out_time[:, failed] = np.nan
-    time = np.where(failed, np.nan, clock)
+    gm, body_radius, soi_radius, v_inf, approach, thrust, exhaust_speed, mass = (np.ravel(a).copy() for a in arrays)
+    n, burns = gm.size, len(burn_radii)
+
+    def flat(value):
+        return np.ravel(np.broadcast_to(np.asarray(value, dtype=float), shape)).copy()
+
+    radii = [flat(r) for r in burn_radii]
+    orbit_list = [(flat(a), flat(b)) for a, b in orbits]
+    safe = body_radius.copy() if safe_radius is None else flat(safe_radius)
+    split = np.full(n, np.nan) if split_apoapsis is None else flat(split_apoapsis)
+    periapsis, apoapsis = orbit_list[0]
+    splittable = np.ones((burns, n), dtype=bool)
+    splittable[0] = split > apoapsis * (1.0 + 1e-9)  # a capture splits only into a longer ellipse than its own
+    before = [hyperbolic_periapsis_speed(v_inf, gm, periapsis)] + [
+        _speed_on(gm, radii[k], *orbit_list[k - 1]) for k in range(1, burns)]
+    after = [_speed_on(gm, radii[k], *orbit_list[k]) for k in range(burns)]
+    counts = np.ones((burns, n), dtype=np.int64)
+    if given:
+        counts[...] = np.broadcast_to(np.asarray(passes), (burns, *shape)).reshape(burns, n)
+        counts[0] = np.where(splittable[0], counts[0], 1)
+    elif not auto:
+        counts[0] = np.where(splittable[0], passes, 1)
+    plan = _Plan(radii, orbit_list, before, after, np.where(splittable[0], _speed_on(gm, periapsis, periapsis, split),
+                                                           np.inf), counts)
+    points = _Points(gm, body_radius, soi_radius, thrust, exhaust_speed, _RESERVE * mass)
+    # The arc each burn sweeps (its impulsive-equivalent time at the angular rate of its apsis):
+    # "auto" splits the burn sweeping the widest arc per pass first.
+    arc = np.stack([after[k] / radii[k] * impulsive_burn_time(impulsive_delta_v[k], mass, thrust, exhaust_speed)
+                    for k in range(burns)]) if burns else np.zeros((0, n))
+    most = max(max_passes, 1) if auto else int(counts[0].max())
+    out = {key: np.full((burns, n), np.nan) for key in ("delta_v", "duration", "ignition", "periapsis", "apoapsis")}
+    out.update(time=np.full(n, np.nan), outcome=np.zeros(n, dtype=np.int8), trim=np.full(n, np.nan),
+               lowest=np.full(n, np.nan), approach=approach.copy(), passes=np.ones((burns, n), dtype=np.int8),
+               pass_ignition=np.full((most, n), np.nan), pass_delta_v=np.full((most, n), np.nan))
+    tier = np.full(n, 3)
+    todo = np.arange(n)
+    while todo.size:
+        sub = _Plan([r[todo] for r in radii], [(a[todo], b[todo]) for a, b in orbit_list],
+                    [b[todo] for b in before], [a[todo] for a in after], plan.split[todo], counts[:, todo])
+        flown = _fly_plan(points.take(todo), v_inf[todo], approach[todo], sub, mass[todo], steering, refinement,
+                          safe[todo], aim)
+        ok = flown["outcome"] == 0
+        new_tier = np.where(ok, np.where(flown["trim"] <= TRIM_SPLIT, 0, 1), 2)
+        total = np.nansum(flown["delta_v"], axis=0) + flown["trim"]
+        old_total = np.nansum(out["delta_v"][:, todo], axis=0) + out["trim"][todo]
+        take = (new_tier < tier[todo]) | ((new_tier == tier[todo]) & ((new_tier == 2) | (total < old_total)))
+        where, source = todo[take], np.flatnonzero(take)
+        for key, value in flown.items():
+            if key.startswith("pass_"):
+                out[key][:, where] = np.nan
+                out[key][:value.shape[0], where] = value[:, source]
+            else:
+                out[key][..., where] = value[..., source]
+        tier[where] = new_tier[source]
+        if not auto:
+            break
+        # Split further where the sequence failed for a reason shorter burns may cure, or needed a large trim.
+        retry = todo[np.isin(flown["outcome"], _SPLIT_FIXES) | (new_tier == 1)]
+        width = np.where(splittable[:, retry] & (counts[:, retry] < max_passes), arc[:, retry] / counts[:, retry], 0.0)
+        widest = np.argmax(width, axis=0)
+        can = width[widest, np.arange(retry.size)] > SPLIT_ARC
+        retry, widest = retry[can], widest[can]
+        counts[widest, retry] = np.minimum(2 * counts[widest, retry], max_passes)
+        todo = retry
     return FiniteCapture(
-        *(a.reshape((burns, *shape)) for a in (out_dv, out_time, out_peri, out_apo)),
-        time.reshape(shape), outcome.reshape(shape),
+        *(out[key].reshape((burns, *shape)) for key in ("delta_v", "duration", "periapsis", "apoapsis")),
+        out["time"].reshape(shape), out["outcome"].reshape(shape), out["ignition"].reshape((burns, *shape)),
+        out["trim"].reshape(shape), out["lowest"].reshape(shape), out["approach"].reshape(shape),
+        out["passes"].reshape((burns, *shape)), out["pass_ignition"].reshape((-1, *shape)),
+        out["pass_delta_v"].reshape((-1, *shape)),
     )
