@@ -72,6 +72,7 @@ MAX_PASSES = 8  # "auto" splits a burn over at most this many passes of its apsi
 TRIM_SPLIT = 1.0  # m/s: "auto" splits further where the trim would exceed this
 SPLIT_ARC = np.radians(10.0)  # "auto" splits only burns sweeping a wider arc than this per pass
 _AIM_STEPS = 10  # Broyden iterations at most per burn (after the first shot and one difference)
+_MAX_TURN = 0.5  # rad: the aim turns a later burn's thrust at most this far from its law, at the burn's ends
 _ROUND = 1e-3  # intended orbits of smaller eccentricity are aimed as circles (end on them, horizontal)
 
 # Outcome codes of a sequence (index = code).
@@ -89,13 +90,17 @@ class FiniteCapture(NamedTuple):
     apoapsis_radius: np.ndarray  # m
     time: np.ndarray  # s, from the aimed approach periapsis passage to the end of the last burn
     outcome: np.ndarray  # int8, index into OUTCOMES
-    ignition: np.ndarray  # s, (burns, n): each burn's ignition from the approach periapsis passage
+    ignition: np.ndarray  # s, (burns, n): each burn's ignition (its first pass) from the approach periapsis passage
+    pitch_rate: np.ndarray  # rad/s, (burns, n): rate the thrust turns from its law through mid-burn (first pass)
     trim_delta_v: np.ndarray  # m/s, impulsive trim from the orbit reached to the exact target orbit
     lowest_radius: np.ndarray  # m, lowest radius reached anywhere in the sequence (trim included)
     approach_periapsis: np.ndarray  # m, the approach periapsis the first burn is aimed with
     passes: np.ndarray  # int8, (burns, n): passes of its apsis each burn is split over
-    pass_ignition: np.ndarray  # s, (passes, n): ignition of each pass of the capture (NaN beyond)
-    pass_delta_v: np.ndarray  # m/s, (passes, n)
+    pass_ignition: np.ndarray  # s, (burns, passes, n): ignition of each pass of each burn (NaN beyond its passes)
+    pass_pitch_rate: np.ndarray  # rad/s, (burns, passes, n)
+    pass_turn_centre: np.ndarray  # s from the approach periapsis passage: when the turn passes through zero
+    pass_energy: np.ndarray  # J/kg: the specific energy each pass ends on
+    pass_delta_v: np.ndarray  # m/s, (burns, passes, n)
 
 
 def impulsive_burn_time(delta_v: ArrayLike, mass: ArrayLike, thrust: ArrayLike, exhaust_speed: ArrayLike):
@@ -120,6 +125,8 @@ class _Engine(NamedTuple):
     sign: np.ndarray  # +1 raises the orbital energy, -1 lowers it
     ux: np.ndarray | None = None
     uy: np.ndarray | None = None
+    rate: np.ndarray | None = None  # rad/s: the thrust turns from its law at this rate (None: it does not) ...
+    middle: np.ndarray | None = None  # s after ignition: ... passing through it at this moment
 
     def take(self, index: np.ndarray) -> _Engine:
         return _Engine(*(None if value is None else value[index] for value in self))
@@ -141,27 +148,44 @@ def _apsides(x, y, vx, vy, gm):
     return periapsis, apoapsis
 
 
-def _accelerations(x, y, vx, vy, thrust_acceleration, p: _Engine):
-    """Two-body gravity plus thrust; ``thrust_acceleration`` carries the sign of the burn."""
+def _accelerations(x, y, vx, vy, thrust, p: _Engine):
+    """
+    Two-body gravity plus thrust. ``thrust`` is (signed T/m, cos, sin of the turn from the
+    steering law, or None for no turn): the direction is the law's (velocity or fixed) turned
+    counter-clockwise by that angle.
+    """
+    acceleration, cos, sin = thrust
     r2 = x * x + y * y
     gravity = p.gm / (r2 * np.sqrt(r2))
     if p.ux is None:
-        scale = thrust_acceleration / np.maximum(np.sqrt(vx * vx + vy * vy), _LEAST_SPEED)
-        return vx * scale - gravity * x, vy * scale - gravity * y
-    return p.ux * thrust_acceleration - gravity * x, p.uy * thrust_acceleration - gravity * y
+        scale = acceleration / np.maximum(np.sqrt(vx * vx + vy * vy), _LEAST_SPEED)
+        ux, uy = vx * scale, vy * scale
+    else:
+        ux, uy = p.ux * acceleration, p.uy * acceleration
+    if cos is not None:
+        ux, uy = ux * cos - uy * sin, ux * sin + uy * cos
+    return ux - gravity * x, uy - gravity * y
 
 
-def _thrust_acceleration(tau, p: _Engine):
-    """Signed thrust acceleration T/m at ``tau`` after ignition (the sign is unity for fixed steering)."""
+def _thrust(tau, p: _Engine):
+    """
+    Signed thrust acceleration T/m at ``tau`` after ignition (the sign is unity for fixed
+    steering) and the cosine and sine of the turn ``rate (tau - middle)`` (None without one).
+    """
     acceleration = p.thrust / (p.mass - p.mass_flow * tau)
-    return acceleration * p.sign if p.ux is None else acceleration
+    acceleration = acceleration * p.sign if p.ux is None else acceleration
+    if p.rate is None:
+        return acceleration, None, None
+    # Held at its end values past the burn's expected length: the thrust never turns across the velocity.
+    angle = np.clip(p.rate * (tau - p.middle), -_MAX_TURN, _MAX_TURN)
+    return acceleration, np.cos(angle), np.sin(angle)
 
 
 def _rk4(state, tau, dt, p):
     """One classical Runge-Kutta step ([3]_) of every point with its own ``dt``."""
     x, y, vx, vy = state
     half = 0.5 * dt
-    start, middle, end = (_thrust_acceleration(t, p) for t in (tau, tau + half, tau + dt))
+    start, middle, end = (_thrust(t, p) for t in (tau, tau + half, tau + dt))
     ax1, ay1 = _accelerations(x, y, vx, vy, start, p)
     x2, y2, vx2, vy2 = x + half * vx, y + half * vy, vx + half * ax1, vy + half * ay1
     ax2, ay2 = _accelerations(x2, y2, vx2, vy2, middle, p)
@@ -403,10 +427,12 @@ def _finish(start, tau, dt, goal, end_energy, q: _Engine):
 def _energy_rate(state, tau, p: _Engine):
     """d(energy)/dt = (T/m) u . v: the thrust's power per unit mass (gravity does no net work)."""
     x, y, vx, vy = state
-    thrust_acceleration = _thrust_acceleration(tau, p)
+    acceleration, cos, sin = _thrust(tau, p)
     if p.ux is None:
-        return thrust_acceleration * np.sqrt(vx * vx + vy * vy)
-    return thrust_acceleration * (p.ux * vx + p.uy * vy)
+        along = np.sqrt(vx * vx + vy * vy)
+        return acceleration * (along if cos is None else along * cos)
+    ux, uy = (p.ux, p.uy) if cos is None else (p.ux * cos - p.uy * sin, p.ux * sin + p.uy * cos)
+    return acceleration * (ux * vx + uy * vy)
 
 
 def _eccentricity_vector(x, y, vx, vy, gm):
@@ -436,13 +462,14 @@ class _Points(NamedTuple):
 _STATE = ("x", "y", "vx", "vy")
 
 
-def _leg(flight, index, p: _Points, radius, energy, impulse, offset, first, steering, refinement):
+def _leg(flight, index, p: _Points, radius, energy, impulse, offset, rate, first, steering, refinement):
     """
-    Coast to ignition and fly one burn, for points ``index`` of ``flight`` (a dict of per-point
-    arrays: state, clock, mass, lowest radius; updated in place). When ``first``, the state is
-    the approach periapsis and the clock zero. Ignition comes half the impulsive-equivalent burn
-    time before the apsis, moved later by ``offset`` [s]. Returns delta-v, duration, ignition
-    time and outcome of the burn for those points.
+    Coast to ignition and fly one burn, for entries ``index`` of ``flight`` (a dict of per-entry
+    arrays: state, clock, mass, lowest radius, outcome; updated in place). When ``first``, the
+    state is the approach periapsis and the clock zero. Ignition comes half the
+    impulsive-equivalent burn time before the apsis, moved later by ``offset`` [s]; the thrust
+    turns from the steering law at ``rate`` [rad/s] (None: it does not), through the law at
+    mid-burn. Returns delta-v, duration and ignition time of the burn for those entries.
     """
     state = tuple(flight[k][index] for k in _STATE)
     mass, lowest = flight["mass"][index], flight["lowest"][index]
@@ -465,6 +492,8 @@ def _leg(flight, index, p: _Points, radius, energy, impulse, offset, first, stee
     engine = _Engine(p.gm, p.thrust, mass, flow, sign)
     if steering == "inertial":
         engine = engine._replace(ux=sign * direction[0], uy=sign * direction[1])
+    if rate is not None:
+        engine = engine._replace(rate=rate, middle=0.5 * expected)
     limits = {"soi": p.soi, "body_radius": p.body_radius, "max_time": (mass - p.reserve) / flow}
     end, duration, outcome, low = _burn(start, engine, energy, expected, limits, refinement)
     after = mass - flow * duration
@@ -473,12 +502,13 @@ def _leg(flight, index, p: _Points, radius, energy, impulse, offset, first, stee
     flight["clock"][index] = ignition + duration
     flight["mass"][index] = after
     flight["lowest"][index] = np.minimum(lowest, low)
+    flight["outcome"][index] = outcome
     with np.errstate(invalid="ignore", divide="ignore"):
         delta_v = p.exhaust_speed * np.log(mass / after)
-    return delta_v, duration, ignition, outcome
+    return delta_v, duration, ignition
 
 
-def _miss(flight, gm, periapsis, apoapsis, at_periapsis, outcome):
+def _miss(flight, gm, periapsis, apoapsis, at_periapsis):
     """
     How far the orbit reached misses the intended one, in metres: (along, across), shape (n, 2).
 
@@ -489,6 +519,7 @@ def _miss(flight, gm, periapsis, apoapsis, at_periapsis, outcome):
     ``across`` the same across it. A surface impact gives its osculating periapsis minus the
     intended one (negative), so an aim that sank too low climbs back; other failures give NaN.
     """
+    outcome = flight["outcome"]
     state = tuple(flight[k] for k in _STATE)
     reached_periapsis, reached_apoapsis = _apsides(*state, gm)
     target_e = (apoapsis - periapsis) / (apoapsis + periapsis)
@@ -514,29 +545,20 @@ def _better(new_miss, new_outcome, old_miss, old_outcome):
     return (new_ok & ~old_ok) | ((new_ok == old_ok) & smaller)
 
 
-def _take(flight, index):
-    return {key: value[..., index] for key, value in flight.items()}
-
-
-def _put(into, where, flight, source):
-    for key, value in flight.items():
-        into[key][..., where] = value[..., source]
-
-
-def _aim(fly, start, free, first_step, limit, lower):
+def _aim(fly, start, free, measure, first_step, limit, lower):
     """
     Aim by Broyden's method, all points in lockstep ([4]_): find ``x`` (n, 2) whose flight
     ``fly(x, index) -> (flight dict, misses (m, 2))`` misses by at most ``AIM_TOLERANCE`` in
     each coordinate a point may move (``free``, (n, 2) bool). The first Jacobian is the
-    identity but for the second column, measured by a difference of ``first_step`` (n,) where
-    that coordinate is free. Steps are clipped to ``limit`` (n, 2); ``x`` stays above
-    ``lower`` (n, 2). A step whose flight fails (NaN miss) is halved and tried again. Returns
-    the best flight found (flown beats failed, then the smaller miss), its ``x`` and misses.
+    identity but for the columns ``measure`` (2 bools), measured by a difference of
+    ``first_step`` (n, 2) where that coordinate is free. Steps are clipped to ``limit`` (n, 2);
+    ``x`` stays above ``lower`` (n, 2). A step whose flight fails (NaN miss) is halved and tried
+    again. Returns the best flight found (flown beats failed, then the smaller miss), its ``x``.
     """
     n = start.shape[0]
     x = start.copy()
-    flight, miss = fly(x, np.arange(n))
-    best, best_x, best_miss = flight, x.copy(), miss.copy()
+    best, miss = fly(x, np.arange(n))
+    best_x, best_miss = x.copy(), miss.copy()
     jacobian = np.zeros((n, 2, 2))
     jacobian[:, 0, 0] = jacobian[:, 1, 1] = 1.0
 
@@ -544,50 +566,52 @@ def _aim(fly, start, free, first_step, limit, lower):
         return ~np.isnan(miss[index]).any(axis=1) & (np.where(free[index], np.abs(miss[index]), 0.0)
                                                      > AIM_TOLERANCE).any(axis=1)
 
-    index = np.flatnonzero(free[:, 1] & open_(np.arange(n)))
-    if index.size:
-        trial = x[index].copy()
-        trial[:, 1] += first_step[index]
-        shifted_flight, shifted = fly(trial, index)
-        slope = (shifted - miss[index]) / first_step[index, None]
-        usable = np.isfinite(slope).all(axis=1) & (np.abs(slope[:, 1]) > 1e-6)
-        jacobian[index[usable], :, 1] = slope[usable]
+    for column in (0, 1):
+        index = np.flatnonzero(free[:, column] & open_(np.arange(n))) if measure[column] else np.zeros(0, int)
+        if index.size:
+            trial = x[index].copy()
+            trial[:, column] += first_step[index, column]
+            _, shifted = fly(trial, index)
+            slope = (shifted - miss[index]) / first_step[index, column, None]
+            usable = np.isfinite(slope).all(axis=1) & (np.abs(slope[:, column]) > 1e-9)
+            jacobian[index[usable], :, column] = slope[usable]
     active = np.flatnonzero(open_(np.arange(n)))
     halving = np.zeros((n, 2))
     for _ in range(_AIM_STEPS):
         if active.size == 0:
             break
-        j = jacobian[active]
-        f = np.where(free[active], miss[active], 0.0)
-        j[:, 0, 1] = np.where(free[active, 1], j[:, 0, 1], 0.0)
-        j[:, 1, 0] = np.where(free[active, 1], j[:, 1, 0], 0.0)
-        j[:, 1, 1] = np.where(free[active, 1], j[:, 1, 1], 1.0)
+        free_a = free[active]
+        j = np.where(free_a[:, :, None] & free_a[:, None, :], jacobian[active], 0.0)
+        j[:, 0, 0] = np.where(free_a[:, 0], j[:, 0, 0], 1.0)
+        j[:, 1, 1] = np.where(free_a[:, 1], j[:, 1, 1], 1.0)
+        f = np.where(free_a, miss[active], 0.0)
         det = j[:, 0, 0] * j[:, 1, 1] - j[:, 0, 1] * j[:, 1, 0]
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = -np.stack([j[:, 1, 1] * f[:, 0] - j[:, 0, 1] * f[:, 1],
                                 j[:, 0, 0] * f[:, 1] - j[:, 1, 0] * f[:, 0]], axis=1) / det[:, None]
         retry = (halving[active] != 0.0).any(axis=1)
         step = np.where(retry[:, None], 0.5 * halving[active], newton)
-        step = np.where(free[active] & np.isfinite(step), np.clip(step, -limit[active], limit[active]), 0.0)
+        step = np.where(free_a & np.isfinite(step), np.clip(step, -limit[active], limit[active]), 0.0)
         trial = np.maximum(x[active] + step, lower[active])
         step = trial - x[active]
         flight, new = fly(trial, active)
-        failed = np.isnan(new).any(axis=1) | ~free[active].any(axis=1)
+        failed = np.isnan(new).any(axis=1)
         halving[active] = np.where(failed[:, None], step, 0.0)
         ok = np.flatnonzero(~failed)
         index = active[ok]
         if index.size:
-            moved, change = step[ok], new[ok] - miss[index]
+            moved, change = step[ok], np.where(free[index], new[ok] - miss[index], 0.0)
             size = np.einsum("ij,ij->i", moved, moved)
             predicted = np.einsum("ijk,ik->ij", jacobian[index], moved)
             correction = (change - predicted) / np.where(size > 0, size, np.inf)[:, None]
             jacobian[index] += correction[:, :, None] * moved[:, None, :]
             x[index], miss[index] = trial[ok], new[ok]
             better = _better(new[ok], flight["outcome"][ok], best_miss[index], best["outcome"][index])
-            _put(best, index[better], flight, ok[better])
+            for key, value in flight.items():
+                best[key][..., index[better]] = value[..., ok[better]]
             best_x[index[better]], best_miss[index[better]] = x[index[better]], miss[index[better]]
         active = active[failed | open_(active)]
-    return best, best_x, best_miss
+    return best, best_x
 
 
 def _trim(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
@@ -599,15 +623,14 @@ def _trim(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
 
     Returns the delta-v [m/s] and the lowest periapsis of the orbits flown on the way [m].
     """
-    def speed(r, r1, r2):
-        return np.sqrt(np.maximum(gm * (2.0 / r - 2.0 / (r1 + r2)), 0.0))
-
-    first = (np.abs(speed(periapsis, periapsis, target_apoapsis) - speed(periapsis, periapsis, apoapsis))
-             + np.abs(speed(target_apoapsis, target_periapsis, target_apoapsis)
-                      - speed(target_apoapsis, periapsis, target_apoapsis)))
-    second = (np.abs(speed(apoapsis, target_periapsis, apoapsis) - speed(apoapsis, periapsis, apoapsis))
-              + np.abs(speed(target_periapsis, target_periapsis, target_apoapsis)
-                       - speed(target_periapsis, target_periapsis, apoapsis)))
+    first = (np.abs(_speed_on(gm, periapsis, periapsis, target_apoapsis)
+                    - _speed_on(gm, periapsis, periapsis, apoapsis))
+             + np.abs(_speed_on(gm, target_apoapsis, target_periapsis, target_apoapsis)
+                      - _speed_on(gm, target_apoapsis, periapsis, target_apoapsis)))
+    second = (np.abs(_speed_on(gm, apoapsis, target_periapsis, apoapsis)
+                     - _speed_on(gm, apoapsis, periapsis, apoapsis))
+              + np.abs(_speed_on(gm, target_periapsis, target_periapsis, target_apoapsis)
+                       - _speed_on(gm, target_periapsis, target_periapsis, apoapsis)))
     lowest = np.where(first <= second, np.minimum(periapsis, target_apoapsis), np.minimum(target_periapsis, apoapsis))
     return np.minimum(first, second), np.minimum(lowest, target_periapsis)
 
@@ -628,7 +651,12 @@ class _Plan(NamedTuple):
     counts: np.ndarray  # (burns, n) int: passes of each burn
 
     def pass_target(self, k, j, points, gm):
-        """Energy [J/kg] and impulsive delta-v [m/s] of pass ``j`` of burn ``k`` for ``points``."""
+        """
+        Pass ``j`` of burn ``k`` for ``points``: its energy [J/kg], impulsive delta-v [m/s], the
+        apsides of the orbit it aims for [m] and whether the burn is made at its periapsis. A
+        pass keeps the burn's apsis and takes its share of the speed change there (vis-viva);
+        the last pass aims for the burn's own orbit.
+        """
         count = self.counts[k][points]
         before, after, radius = self.before[k][points], self.after[k][points], self.radius[k][points]
 
@@ -644,106 +672,101 @@ class _Plan(NamedTuple):
         speed = end(j)
         start = before if j == 0 else end(j - 1)
         last = j == count - 1
-        energy = np.where(last, -gm / (self.orbits[k][0][points] + self.orbits[k][1][points]),
-                          0.5 * speed * speed - gm / radius)
-        return energy, np.abs(start - speed)
+        periapsis, apoapsis = self.orbits[k][0][points], self.orbits[k][1][points]
+        energy = np.where(last, -gm / (periapsis + apoapsis), 0.5 * speed * speed - gm / radius)
+        other = np.where(last, periapsis + apoapsis - radius, -gm / energy - radius)
+        low, high = np.minimum(radius, other), np.maximum(radius, other)
+        at_periapsis = np.where(last, np.abs(radius - periapsis) <= np.abs(radius - apoapsis), radius <= other)
+        return energy, np.abs(start - speed), (np.where(last, periapsis, low), np.where(last, apoapsis, high)), \
+            at_periapsis
+
+
+_RECORD = ("delta_v", "duration", "ignition", "rate", "centre", "energy")
 
 
 def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refinement, safe_radius, aim):
     """The whole sequence of ``plan`` for every point of ``p``: aimed, trimmed, checked (see :func:`fly_capture`)."""
     n = v_inf.size
     burns = len(plan.radius)
-    round_ = [(a - r) / (a + r) < _ROUND for r, a in plan.orbits]
-    pass_keys = ("pass_delta_v", "pass_duration", "pass_ignition")
+    most = int(plan.counts.max())
+    flight = {"x": approach.copy(), "y": np.zeros(n), "vx": np.zeros(n),
+              "vy": hyperbolic_periapsis_speed(v_inf, p.gm, approach), "clock": np.zeros(n), "mass": mass.copy(),
+              "lowest": np.full(n, np.inf), "outcome": np.zeros(n, dtype=np.int8)}
+    out = {key: np.full((burns, most, n), np.nan) for key in _RECORD}  # per pass
+    out["approach"] = approach.copy()
+    out["reached"] = np.full((2, burns, n), np.nan)
+    failed_at = np.full(n, burns)  # the burn a failed sequence failed in (burns: the checks after the last)
+    for k in range(burns):
+        for j in range(int(plan.counts[k].max())):
+            points = np.flatnonzero((flight["outcome"] == 0) & (plan.counts[k] > j))
+            if points.size == 0:
+                continue
+            q = p.take(points)
+            energy, impulse, (periapsis, apoapsis), at_periapsis = plan.pass_target(k, j, points, q.gm)
+            round_ = (apoapsis - periapsis) / (apoapsis + periapsis) < _ROUND
+            before = {key: value[points] for key, value in flight.items()}
+            expected = impulsive_burn_time(impulse, before["mass"], q.thrust, q.exhaust_speed)
+            first = k == 0 and j == 0
+            if first:
+                speed = hyperbolic_periapsis_speed(v_inf[points], q.gm, approach[points])
+            else:
+                speed = np.maximum(_speed_on(q.gm, plan.radius[k][points], *_apsides(
+                    *(before[s] for s in _STATE), q.gm)), 1.0)
+            arc = speed * expected  # m along the track: the scale of the ignition shift
 
-    def fly_burn(k, flight, index, offset):
-        """All passes of burn ``k`` for entries ``index`` of ``flight`` (global points ``points``)."""
-        points = flight["point"][index]
-        most = int(plan.counts[k].max())  # the same for every subset: results of trials merge row for row
-        for key in pass_keys:
-            flight[key] = np.full((most, flight["x"].size), np.nan)
-        alive = index
-        for j in range(most):
-            alive = alive[plan.counts[k][flight["point"][alive]] > j]
-            if alive.size == 0:
-                break
-            pts = flight["point"][alive]
-            energy, impulse = plan.pass_target(k, j, pts, p.gm[pts])
-            last = plan.counts[k][pts] == j + 1
-            values = _leg(flight, alive, p.take(pts), plan.radius[k][pts], energy, impulse,
-                          np.where(last, offset[np.searchsorted(index, alive)], 0.0), k == 0 and j == 0,
-                          steering, refinement)
-            for key, value in zip(pass_keys, values, strict=False):
-                flight[key][j, alive] = value
-            flight["outcome"][alive] = values[3]
-            alive = alive[values[3] == 0]
-        at_periapsis = np.abs(plan.radius[k][points] - plan.orbits[k][0][points]) <= \
-            np.abs(plan.radius[k][points] - plan.orbits[k][1][points])
-        return _miss({key: flight[key][index] for key in _STATE}, p.gm[points], plan.orbits[k][0][points],
-                     plan.orbits[k][1][points], at_periapsis, flight["outcome"][index])
+            def fly(x, index, first=first, before=before, q=q, energy=energy, impulse=impulse, expected=expected,
+                    speed=speed, periapsis=periapsis, apoapsis=apoapsis, at_periapsis=at_periapsis, k=k, j=j,
+                    points=points):
+                leg = {key: value[index].copy() for key, value in before.items()}
+                sub = q.take(index)
+                if first:  # x: approach periapsis radius, ignition shift along the track
+                    leg["x"] = x[:, 0].copy()  # the leg moves the state on in place; x is the aim's
+                    leg["vy"] = hyperbolic_periapsis_speed(v_inf[points][index], sub.gm, x[:, 0])
+                    rate, offset = None, x[:, 1] / leg["vy"]
+                else:  # x: turn angle at the burn's ends (rad), ignition shift along the track
+                    rate, offset = x[:, 0] / np.maximum(0.5 * expected[index], 1e-9), x[:, 1] / speed[index]
+                values = _leg(leg, np.arange(index.size), sub, plan.radius[k][points][index], energy[index],
+                              impulse[index], offset, rate, first, steering, refinement)
+                for key, value in zip(_RECORD, (*values, np.zeros(index.size) if rate is None else rate,
+                                                values[2] + 0.5 * expected[index], energy[index]), strict=True):
+                    leg[key] = value
+                return leg, _miss(leg, sub.gm, periapsis[index], apoapsis[index], at_periapsis[index])
 
-    def capture(x, index):
-        speed = hyperbolic_periapsis_speed(v_inf[index], p.gm[index], x[:, 0])
-        flight = {"point": index, "x": x[:, 0].copy(), "y": np.zeros(index.size), "vx": np.zeros(index.size),
-                  "vy": speed, "clock": np.zeros(index.size), "mass": mass[index].copy(),
-                  "lowest": np.full(index.size, np.inf), "outcome": np.zeros(index.size, dtype=np.int8)}
-        miss = fly_burn(0, flight, np.arange(index.size), x[:, 1] / speed)
-        return flight, miss
-
-    free = np.zeros((n, 2), dtype=bool)
-    free[:, 0] = aim
-    free[:, 1] = aim & round_[0]
-    approach_speed = hyperbolic_periapsis_speed(v_inf, p.gm, approach)
-    first_pass = plan.pass_target(0, 0, np.arange(n), p.gm)[1]
-    arc = approach_speed * impulsive_burn_time(first_pass, mass, p.thrust, p.exhaust_speed)  # m along the track
-    limit = np.stack([0.5 * (approach - p.body_radius) + 1e4, arc + 1e3], axis=1)
-    lower = np.stack([p.body_radius + 1.0, np.full(n, -np.inf)], axis=1)
-    flight, x, _ = _aim(capture, np.stack([approach, np.zeros(n)], axis=1), free, 0.05 * arc + 1.0, limit, lower)
-    out = {key: np.full((burns, n), np.nan) for key in ("delta_v", "duration", "ignition", "periapsis", "apoapsis")}
-    out["approach"] = x[:, 0]
-    out["pass_ignition"], out["pass_delta_v"] = flight["pass_ignition"], flight["pass_delta_v"]
-
-    def record(k, flight, points):
-        out["delta_v"][k, points] = np.sum(flight["pass_delta_v"], axis=0)
-        out["duration"][k, points] = np.sum(flight["pass_duration"], axis=0)
-        out["ignition"][k, points] = flight["pass_ignition"][0]
-        out["periapsis"][k, points], out["apoapsis"][k, points] = _apsides(*(flight[s] for s in _STATE),
-                                                                          p.gm[points])
-
-    record(0, flight, np.arange(n))
-    final = {key: flight[key] for key in ("x", "y", "vx", "vy", "clock", "mass", "lowest", "outcome")}
-    for k in range(1, burns):
-        alive = np.flatnonzero(final["outcome"] == 0)
-        if alive.size == 0:
-            break
-        before = {key: value[alive] for key, value in final.items()}
-        before["point"] = alive
-        speed_k = np.maximum(plan.before[k][alive], 1.0)
-
-        def later(x, index, k=k, before=before, speed_k=speed_k):
-            flight = {key: value[index].copy() for key, value in before.items()}
-            return flight, fly_burn(k, flight, np.arange(index.size), x[:, 1] / speed_k[index])
-
-        free_k = np.zeros((alive.size, 2), dtype=bool)
-        free_k[:, 1] = aim & round_[k][alive]
-        first_pass = plan.pass_target(k, 0, alive, p.gm[alive])[1]
-        arc_k = speed_k * impulsive_burn_time(first_pass, before["mass"], p.thrust[alive], p.exhaust_speed[alive])
-        leg, _, _ = _aim(later, np.zeros((alive.size, 2)), free_k, 0.05 * arc_k + 1.0,
-                         np.stack([np.zeros(alive.size), arc_k + 1e3], axis=1), np.full((alive.size, 2), -np.inf))
-        for key in final:
-            final[key][alive] = leg[key]
-        record(k, leg, alive)
-    outcome = final["outcome"]
+            free = np.stack([np.full(points.size, aim), aim & round_], axis=1)
+            if first:
+                start = np.stack([approach[points], np.zeros(points.size)], axis=1)
+                limit = np.stack([0.5 * (approach[points] - q.body_radius) + 1e4, arc + 1e3], axis=1)
+                lower = np.stack([q.body_radius + 1.0, np.full(points.size, -np.inf)], axis=1)
+                step = np.stack([np.ones(points.size), 0.05 * arc + 1.0], axis=1)
+                measure = (False, True)  # the reached periapsis follows the approach's about one for one
+            else:
+                start = np.zeros((points.size, 2))
+                limit = np.stack([np.full(points.size, _MAX_TURN), arc + 1e3], axis=1)
+                lower = np.full((points.size, 2), -np.inf)
+                step = np.stack([np.full(points.size, 0.01), 0.05 * arc + 1.0], axis=1)
+                measure = (True, True)
+            leg, x = _aim(fly, start, free, measure, step, limit, lower)
+            failed_at[points[leg["outcome"] != 0]] = k
+            for key in flight:
+                flight[key][points] = leg[key]
+            for key in _RECORD:
+                out[key][k, j, points] = leg[key]
+            if first:
+                out["approach"][points] = x[:, 0]
+        alive = np.flatnonzero(flight["outcome"] == 0)
+        out["reached"][:, k, alive] = _apsides(*(flight[s][alive] for s in _STATE), p.gm[alive])
+    outcome = flight["outcome"]
     ok = outcome == 0
-    trim, trim_lowest = _trim(p.gm, out["periapsis"][-1], out["apoapsis"][-1], *plan.orbits[-1])
-    lowest = np.minimum(final["lowest"], np.minimum(out["periapsis"][-1], trim_lowest))
-    outcome[ok & (out["periapsis"][-1] < p.body_radius)] = OUTCOMES.index("surface_impact")
+    periapsis, apoapsis = out["reached"][:, -1]
+    trim, trim_lowest = _trim(p.gm, periapsis, apoapsis, *plan.orbits[-1])
+    lowest = np.minimum(flight["lowest"], np.where(ok, np.minimum(periapsis, trim_lowest), np.inf))
+    outcome[ok & (periapsis < p.body_radius)] = OUTCOMES.index("surface_impact")
     outcome[(outcome == 0) & (lowest < safe_radius - SAFE_TOLERANCE)] = OUTCOMES.index("below_safe_altitude")
     failed = outcome != 0
-    for key in ("delta_v", "duration", "ignition", "pass_ignition", "pass_delta_v"):
-        out[key][:, failed] = np.nan
-    out.update(time=np.where(failed, np.nan, final["clock"]), outcome=outcome, trim=np.where(failed, np.nan, trim),
-               lowest=lowest, passes=plan.counts.astype(np.int8))
+    for key in _RECORD:
+        out[key][:, :, failed] = np.nan
+    out.update(time=np.where(failed, np.nan, flight["clock"]), outcome=outcome, trim=np.where(failed, np.nan, trim),
+               lowest=lowest, passes=plan.counts.astype(np.int8), failed_at=failed_at)
     return out
 
 
@@ -878,11 +901,11 @@ def fly_capture(
     # "auto" splits the burn sweeping the widest arc per pass first.
     arc = np.stack([after[k] / radii[k] * impulsive_burn_time(impulsive_delta_v[k], mass, thrust, exhaust_speed)
                     for k in range(burns)]) if burns else np.zeros((0, n))
-    most = max(max_passes, 1) if auto else int(counts[0].max())
-    out = {key: np.full((burns, n), np.nan) for key in ("delta_v", "duration", "ignition", "periapsis", "apoapsis")}
-    out.update(time=np.full(n, np.nan), outcome=np.zeros(n, dtype=np.int8), trim=np.full(n, np.nan),
-               lowest=np.full(n, np.nan), approach=approach.copy(), passes=np.ones((burns, n), dtype=np.int8),
-               pass_ignition=np.full((most, n), np.nan), pass_delta_v=np.full((most, n), np.nan))
+    most = max(max_passes, 1) if auto else int(counts.max())
+    out = {key: np.full((burns, most, n), np.nan) for key in _RECORD}
+    out.update(reached=np.full((2, burns, n), np.nan), time=np.full(n, np.nan), outcome=np.zeros(n, dtype=np.int8),
+               trim=np.full(n, np.nan), lowest=np.full(n, np.nan), approach=approach.copy(),
+               passes=np.ones((burns, n), dtype=np.int8), failed_at=np.full(n, burns))
     tier = np.full(n, 3)
     todo = np.arange(n)
     while todo.size:
@@ -892,31 +915,40 @@ def fly_capture(
                           safe[todo], aim)
         ok = flown["outcome"] == 0
         new_tier = np.where(ok, np.where(flown["trim"] <= TRIM_SPLIT, 0, 1), 2)
-        total = np.nansum(flown["delta_v"], axis=0) + flown["trim"]
-        old_total = np.nansum(out["delta_v"][:, todo], axis=0) + out["trim"][todo]
+        total = np.nansum(flown["delta_v"], axis=(0, 1)) + flown["trim"]
+        old_total = np.nansum(out["delta_v"][:, :, todo], axis=(0, 1)) + out["trim"][todo]
         take = (new_tier < tier[todo]) | ((new_tier == tier[todo]) & ((new_tier == 2) | (total < old_total)))
         where, source = todo[take], np.flatnonzero(take)
         for key, value in flown.items():
-            if key.startswith("pass_"):
-                out[key][:, where] = np.nan
-                out[key][:value.shape[0], where] = value[:, source]
+            if key in _RECORD:
+                out[key][:, :, where] = np.nan
+                out[key][:, :value.shape[1], where] = value[:, :, source]
             else:
                 out[key][..., where] = value[..., source]
         tier[where] = new_tier[source]
         if not auto:
             break
         # Split further where the sequence failed for a reason shorter burns may cure, or needed a large trim.
-        retry = todo[np.isin(flown["outcome"], _SPLIT_FIXES) | (new_tier == 1)]
-        width = np.where(splittable[:, retry] & (counts[:, retry] < max_passes), arc[:, retry] / counts[:, retry], 0.0)
+        # Only a burn up to the one that failed can cure it.
+        retry = np.isin(flown["outcome"], _SPLIT_FIXES) | (new_tier == 1)
+        reach = np.arange(burns)[:, None] <= flown["failed_at"][retry]
+        retry = todo[retry]
+        width = np.where(reach & splittable[:, retry] & (counts[:, retry] < max_passes),
+                         arc[:, retry] / counts[:, retry], 0.0)
         widest = np.argmax(width, axis=0)
         can = width[widest, np.arange(retry.size)] > SPLIT_ARC
         retry, widest = retry[can], widest[can]
         counts[widest, retry] = np.minimum(2 * counts[widest, retry], max_passes)
         todo = retry
+    failed = out["outcome"] != 0
+    per_burn = {"delta_v": np.where(failed, np.nan, np.nansum(out["delta_v"], axis=1)),
+                "duration": np.where(failed, np.nan, np.nansum(out["duration"], axis=1)),
+                "ignition": out["ignition"][:, 0], "rate": out["rate"][:, 0]}
     return FiniteCapture(
-        *(out[key].reshape((burns, *shape)) for key in ("delta_v", "duration", "periapsis", "apoapsis")),
-        out["time"].reshape(shape), out["outcome"].reshape(shape), out["ignition"].reshape((burns, *shape)),
-        out["trim"].reshape(shape), out["lowest"].reshape(shape), out["approach"].reshape(shape),
-        out["passes"].reshape((burns, *shape)), out["pass_ignition"].reshape((-1, *shape)),
-        out["pass_delta_v"].reshape((-1, *shape)),
+        per_burn["delta_v"].reshape((burns, *shape)), per_burn["duration"].reshape((burns, *shape)),
+        *(value.reshape((burns, *shape)) for value in out["reached"]),
+        out["time"].reshape(shape), out["outcome"].reshape(shape), per_burn["ignition"].reshape((burns, *shape)),
+        per_burn["rate"].reshape((burns, *shape)), out["trim"].reshape(shape), out["lowest"].reshape(shape),
+        out["approach"].reshape(shape), out["passes"].reshape((burns, *shape)),
+        *(out[key].reshape((burns, most, *shape)) for key in ("ignition", "rate", "centre", "energy", "delta_v")),
     )
