@@ -131,6 +131,10 @@ class _Engine(NamedTuple):
     def take(self, index: np.ndarray) -> _Engine:
         return _Engine(*(None if value is None else value[index] for value in self))
 
+    @staticmethod
+    def join(parts: list[_Engine]) -> _Engine:
+        return _Engine(*(None if values[0] is None else np.concatenate(values) for values in zip(*parts, strict=True)))
+
 
 def _energy(x, y, vx, vy, gm):
     return 0.5 * (vx * vx + vy * vy) - gm / np.sqrt(x * x + y * y)
@@ -177,7 +181,7 @@ def _thrust(tau, p: _Engine):
     if p.rate is None:
         return acceleration, None, None
     # Held at its end values past the burn's expected length: the thrust never turns across the velocity.
-    angle = np.clip(p.rate * (tau - p.middle), -_MAX_TURN, _MAX_TURN)
+    angle = np.minimum(np.maximum(p.rate * (tau - p.middle), -_MAX_TURN), _MAX_TURN)
     return acceleration, np.cos(angle), np.sin(angle)
 
 
@@ -369,6 +373,7 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
     work = (x[ids], y[ids], vx[ids], vy[ids])
     tau, goal, burn_step, low = np.zeros(ids.size), target_energy[ids], burn_step[ids], lowest[ids]
     soi, surface, max_time = (limits[key][ids] for key in ("soi", "body_radius", "max_time"))
+    ending = []  # points whose last step crossed the target energy, with that step
     for _ in range(_MAX_STEPS):
         if ids.size == 0:
             break
@@ -389,12 +394,10 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
         done = crossed | escaped | exhausted | impact
         if done.any():
             if crossed.any():
+                # Finished after the loop, all together: one partial-step solve instead of one per step.
                 c = np.flatnonzero(crossed)
-                end, step = _finish(tuple(s[c] for s in work), tau[c], dt[c], goal[c], new_energy[c], q.take(c))
-                for target, values in zip((x, y, vx, vy), end, strict=True):
-                    target[ids[c]] = values
-                duration[ids[c]] = tau[c] + step
-                low[c] = np.minimum(low[c], np.hypot(end[0], end[1]))
+                ending.append((ids[c], tuple(s[c] for s in work), tau[c], dt[c], goal[c], new_energy[c], q.take(c),
+                               low[c]))
             failed = np.flatnonzero(done & ~crossed)
             for target, values in zip((x, y, vx, vy), new, strict=True):
                 target[ids[failed]] = values[failed]
@@ -411,6 +414,16 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
         tau = tau + dt
     outcome[ids] = OUTCOMES.index("propellant_exhausted")  # still burning at the step cap
     lowest[ids] = low
+    if ending:
+        which, start, tau, dt, goal, end_energy, engine, low = (
+            np.concatenate(parts) if isinstance(parts[0], np.ndarray) else parts
+            for parts in zip(*ending, strict=True))
+        start = tuple(np.concatenate(parts) for parts in zip(*start, strict=True))
+        end, step = _finish(start, tau, dt, goal, end_energy, _Engine.join(list(engine)))
+        for target, values in zip((x, y, vx, vy), end, strict=True):
+            target[which] = values
+        duration[which] = tau + step
+        lowest[which] = np.minimum(low, np.hypot(end[0], end[1]))
     return (x, y, vx, vy), duration, outcome, lowest
 
 
