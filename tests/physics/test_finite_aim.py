@@ -84,7 +84,8 @@ def _plan(strategy, gm, v_inf, r_p, r_t, r_a=None):
     if strategy == "direct":
         return r_t, [r_t], [(r_t, r_t)], [float(b) for b in direct_capture(v_inf, gm, r_t).burns]
     if strategy == "two_burn":
-        return r_p, [r_p, r_t], [(r_p, r_t), (r_t, r_t)], [float(b) for b in two_burn_capture(v_inf, gm, r_p, r_t).burns]
+        return (r_p, [r_p, r_t], [(r_p, r_t), (r_t, r_t)],
+                [float(b) for b in two_burn_capture(v_inf, gm, r_p, r_t).burns])
     return (r_p, [r_p, r_a, r_t], [(r_p, r_a), (r_t, r_a), (r_t, r_t)],
             [float(b) for b in three_burn_capture(v_inf, gm, r_p, r_t, r_a).burns])
 
@@ -221,7 +222,7 @@ def test_spread_is_mostly_flown_and_includes_split_captures():
     flown = _flown()
     assert len(flown) >= 40  # measured: every point ok
     split = [p for p, k, _ in flown if (k["passes"] > 1).any()]
-    assert len(split) >= 5, [_label(p) for p in split]  # measured 9
+    assert len(split) >= 5, [_label(p) for p in split]  # measured 7 (six weak direct, one two_burn)
 
 
 def test_replay_flies_every_flown_plan_without_hitting_the_surface():
@@ -234,7 +235,7 @@ def test_replay_flies_every_flown_plan_without_hitting_the_surface():
 def test_every_pass_delta_v_within_0_05_m_s_of_the_replay():
     # independent integration: scipy solve_ivp DOP853 at rtol 1e-11. Tolerance 0.05 m/s per
     # pass, as asked; the kernel's RK4 steps are documented as a few mm/s. Measured worst on
-    # this spread: ~1e-3 m/s (Jupiter, the largest speeds).
+    # this spread: 6.9e-3 m/s (a two-pass Venus capture at T/W 0.068); ~1e-3 m/s at Jupiter.
     for point, kernel, replay in _flown():
         passes = kernel["pass_delta_v"][np.isfinite(kernel["pass_delta_v"])]
         np.testing.assert_allclose(passes, replay.delta_v, rtol=0, atol=0.05, err_msg=_label(point))
@@ -271,7 +272,7 @@ def test_final_orbit_within_0_1_km_of_target_where_the_trim_is_small():
             on_target += 1
             assert replay.periapsis_radius[-1] == pytest.approx(target_periapsis, abs=ON_TARGET), _label(point)
             assert replay.apoapsis_radius[-1] == pytest.approx(target_apoapsis, abs=ON_TARGET), _label(point)
-    assert on_target >= 0.8 * len(_flown())  # measured: all of them
+    assert on_target >= 0.8 * len(_flown())  # measured: all 53, worst replayed miss 61 m
 
 
 def test_trim_is_the_two_impulse_cost_of_the_miss():
@@ -284,7 +285,8 @@ def test_trim_is_the_two_impulse_cost_of_the_miss():
     for point, kernel, replay in _flown():
         gm = BODIES[point[0]][0]
         target = point[4][2][-1]
-        own = _two_impulse_trim(gm, float(kernel["periapsis_radius"][-1]), float(kernel["apoapsis_radius"][-1]), *target)
+        reached = float(kernel["periapsis_radius"][-1]), float(kernel["apoapsis_radius"][-1])
+        own = _two_impulse_trim(gm, *reached, *target)
         assert float(kernel["trim_delta_v"]) == pytest.approx(own, abs=1e-9), _label(point)
         replayed = _two_impulse_trim(gm, replay.periapsis_radius[-1], replay.apoapsis_radius[-1], *target)
         allowance = 1e-5 * _speed(gm, target[0], *target)
@@ -334,14 +336,15 @@ def _case_plan(name, strategy, v_inf, periapsis_altitude, target_altitude, bound
 def test_finite_total_tends_to_impulsive_as_thrust_grows(case):
     # Common practice (Robbins 1966, AIAA J. 4(8):1417; from memory): the impulsive burn is the
     # limit of infinite thrust. Impulsive delta-v from sweep.physics.capture. Tolerance 0.1 m/s
-    # at T/W 100, as asked; measured at most ~2e-3 m/s (the aim's residual trim dominates).
+    # at T/W 100, as asked; measured at most 5.2e-3 m/s (Moon three_burn: there the aim's
+    # residual trim dominates, larger than the loss at T/W 10, so no finer ordering is asserted).
     body, plan = _case_plan(*case)
     ratios = np.array([1.0, 10.0, 100.0])
     result = _fly(body, case[2], _thrust(ratios), plan)
     assert (result.outcome == OK).all()
     loss = result.delta_v.sum(axis=0) + result.trim_delta_v - sum(plan[3])
     assert abs(loss[2]) < 0.1
-    assert loss[0] > 0.0 and loss[0] > abs(loss[2])  # a weaker engine pays more (measured 0.4-8 m/s at T/W 1)
+    assert loss[0] > 0.0 and loss[0] > abs(loss[2])  # a weaker engine pays more (measured 0.03-9.1 m/s at T/W 1)
 
 
 # =======================================================================================
@@ -408,9 +411,10 @@ def _assert_on_target_or_physical(name, strategy, v_inf, thrust, plan, safe_radi
     point = _column(result)
     outcome = OUTCOMES[int(point["outcome"])]
     target_periapsis, target_apoapsis = plan[2][-1]
+    lowest_km, approach_km = ((float(point[key]) - radius) / 1e3 for key in ("lowest_radius", "approach_periapsis"))
     print(f"{name} {strategy} {thrust:.0f} N v_inf {v_inf:.0f}: {outcome}, passes {point['passes'].tolist()}, "
-          f"trim {float(point['trim_delta_v']):.4f} m/s, lowest altitude {(float(point['lowest_radius']) - radius) / 1e3:.3f} km, "
-          f"approach altitude {(float(point['approach_periapsis']) - radius) / 1e3:.1f} km")
+          f"trim {float(point['trim_delta_v']):.4f} m/s, lowest altitude {lowest_km:.3f} km, "
+          f"approach altitude {approach_km:.1f} km")
     if outcome == "ok":
         # The kernel's claim: trim small, apsides on target, never below the safe radius (less
         # its SAFE_TOLERANCE margin) ...
