@@ -21,7 +21,16 @@ switching instant is an integrator event:
 Here t_b = (m v_e / T)(1 - exp(-dv_imp / v_e)) with m the mass before that burn (rocket
 equation at constant thrust). The delta-v of a burn is v_e ln(m_before / m_after).
 
-Used by ``tests/physics/test_finite_burn.py`` and, for per-point timing, by a benchmark.
+``replay_flight`` replays a whole flight plan as given (the aimed model): from the approach
+periapsis at t = 0, every coast integrated numerically (backward for an ignition before the
+periapsis passage) to each pass's ignition time, then a burn with the tangential thrust turned
+counter-clockwise by clip(rate (t - centre), -0.5, 0.5) rad until the energy event, and so on.
+It reports each pass's delta-v, the orbit reached after each pass and the lowest radius of the
+whole path (the smallest of the arc ends and of the radii at every rising r.v = 0 event, the
+only places a smooth path has a radius minimum), the final orbit's periapsis included.
+
+Used by ``tests/physics/test_finite_burn.py``, ``tests/physics/test_finite_aim.py`` and, for
+per-point timing, by a benchmark.
 """
 
 from __future__ import annotations
@@ -31,13 +40,15 @@ from typing import NamedTuple
 
 from scipy.integrate import solve_ivp
 
-__all__ = ["ReferenceCapture", "fly_capture_reference"]
+__all__ = ["ReferenceCapture", "ReplayedFlight", "fly_capture_reference", "replay_flight"]
 
 RTOL = 1e-11  # DOP853 relative tolerance (local error per step)
 ATOL = (1e-6, 1e-6, 1e-9, 1e-9)  # m, m, m/s, m/s: below rtol * |value| for every body used
 RESERVE = 1e-3  # the burns may spend all but this fraction of the arrival mass
 STOPPED = 1e-3  # m/s: speed below which a braking craft counts as brought to rest
 CIRCULAR = 1e-9  # eccentricity below which an orbit has no apsis to wait for: ignite at once
+MAX_TURN = 0.5  # rad: the aimed model's clip on the turn of the thrust from the tangential direction
+LATE = 1e-6  # s: an ignition this much before the previous burn's end is a malformed plan
 
 
 class ReferenceCapture(NamedTuple):
@@ -228,3 +239,135 @@ def fly_capture_reference(
     if periapsis[-1] < body_radius:
         return result(math.nan, "surface_impact")
     return result(clock, "ok")
+
+
+# --- replay of an aimed flight plan --------------------------------------------------------
+class ReplayedFlight(NamedTuple):
+    """Per pass, in flight order (lists), and for the whole flight. SI units."""
+
+    delta_v: list[float]  # m/s, v_e ln(m_before / m_after) of each pass
+    duration: list[float]  # s
+    periapsis_radius: list[float]  # m, of the orbit reached after each pass
+    apoapsis_radius: list[float]  # m (inf when unbound)
+    lowest_radius: float  # m, lowest radius on the whole path, the final orbit's periapsis included
+    end_time: float  # s from the approach periapsis passage to the end of the last pass
+    outcome: str  # "ok", "surface_impact", "propellant_exhausted" (energy never reached)
+
+
+def _pitched_rhs(t, s, gm, thrust, mass, mass_flow, sign, rate, centre, ignition, direction):
+    """Gravity plus thrust along sign * v-hat (or the fixed ``direction``), turned counter-clockwise
+    by clip(rate (ignition + t - centre), -MAX_TURN, MAX_TURN); ``t`` counts from ignition."""
+    gx, gy = _gravity(s, gm)
+    acc = thrust / (mass - mass_flow * t)
+    if direction is None:
+        speed = math.hypot(s[2], s[3])
+        ux, uy = sign * s[2] / speed, sign * s[3] / speed
+    else:
+        ux, uy = direction
+    angle = min(max(rate * (ignition + t - centre), -MAX_TURN), MAX_TURN)
+    c, n = math.cos(angle), math.sin(angle)
+    ux, uy = ux * c - uy * n, ux * n + uy * c
+    return [s[2], s[3], gx + acc * ux, gy + acc * uy]
+
+
+def _periapsis_event(_t, s, *_args):
+    return s[0] * s[2] + s[1] * s[3]
+
+
+_periapsis_event.direction = 1.0  # r.v rising through zero: a local minimum of the radius
+
+
+def _lowest_on(sol):
+    """Lowest radius of an integrated arc: its ends and every rising r.v = 0 event."""
+    radii = [math.hypot(sol.y[0, 0], sol.y[1, 0]), math.hypot(sol.y[0, -1], sol.y[1, -1])]
+    radii += [math.hypot(y[0], y[1]) for y in sol.y_events[0]]
+    return min(radii)
+
+
+def replay_flight(
+    gm: float,
+    body_radius: float,
+    v_inf: float,
+    approach_periapsis: float,
+    passes: list[tuple[float, float, float, float]],
+    thrust: float,
+    exhaust_speed: float,
+    initial_mass: float,
+    steering: str = "tangential",
+    directions: list[tuple[float, float]] | None = None,
+    rtol: float = RTOL,
+) -> ReplayedFlight:
+    """
+    Replay a flight plan: ``passes`` in flight order, each (ignition time [s from the approach
+    periapsis passage], pitch rate [rad/s], turn centre [s, same clock], stop energy [J/kg]).
+    ``steering="inertial"`` takes each pass's fixed thrust direction from ``directions``
+    (unit vectors, before the braking sign and the turn). See the module notes.
+    """
+    if steering not in ("tangential", "inertial"):
+        raise ValueError(f"unknown steering {steering!r}")
+    if steering == "inertial" and (directions is None or len(directions) != len(passes)):
+        raise ValueError("inertial steering needs one direction per pass")
+    atol = ATOL
+    state = [approach_periapsis, 0.0, 0.0, math.sqrt(v_inf**2 + 2.0 * gm / approach_periapsis)]
+    clock, mass = 0.0, initial_mass
+    mass_flow = thrust / exhaust_speed
+    dry_limit = RESERVE * initial_mass
+    delta_v, duration, periapsis, apoapsis = [], [], [], []
+    lowest = math.inf
+    surface = _event(lambda _t, s, *_args: math.hypot(s[0], s[1]) - body_radius, -1.0)
+    surface.terminal = True
+
+    def result(outcome):
+        return ReplayedFlight(delta_v, duration, periapsis, apoapsis, lowest, clock, outcome)
+
+    for index, (ignition, rate, centre, stop_energy) in enumerate(passes):
+        # Coast to ignition. Before the first burn the approach comes in from infinity, so its
+        # lowest point before ignition is the ignition point itself (backward coast: not counted).
+        if ignition < clock - LATE and index > 0:
+            raise ValueError(f"pass {index} ignites at {ignition} s, before the previous burn ends at {clock} s")
+        span = ignition - clock
+        if span != 0.0:
+            sol = solve_ivp(_coast_rhs, (0.0, span), state, method="DOP853", rtol=rtol, atol=atol,
+                            events=[_periapsis_event, surface], args=(gm,))
+            assert sol.status >= 0, sol.message
+            if span > 0.0:
+                if sol.t_events[1].size:
+                    lowest = body_radius
+                    return result("surface_impact")
+                lowest = min(lowest, _lowest_on(sol))
+            state = list(sol.y[:, -1])
+        clock = ignition
+        lowest = min(lowest, math.hypot(state[0], state[1]))
+        if abs(stop_energy - _energy(state, gm)) <= 1e-12 * abs(stop_energy):  # nothing to burn
+            delta_v.append(0.0)
+            duration.append(0.0)
+            _, _, rp, ra = _elements(state, gm)
+            periapsis.append(rp)
+            apoapsis.append(ra)
+            continue
+        # Burn until the energy event.
+        sign = 1.0 if stop_energy >= _energy(state, gm) else -1.0
+        direction = None if steering == "tangential" else directions[index]
+        reached = _event(lambda _t, s, *_args, e=stop_energy: _energy(s, gm) - e, sign)
+        t_max = (mass - dry_limit) / mass_flow
+        sol = solve_ivp(_pitched_rhs, (0.0, t_max), state, method="DOP853", rtol=rtol, atol=atol,
+                        events=[_periapsis_event, surface, reached],
+                        args=(gm, thrust, mass, mass_flow, sign, rate, centre, ignition, direction))
+        assert sol.status >= 0, sol.message
+        lowest = min(lowest, _lowest_on(sol))
+        if sol.t_events[1].size:
+            return result("surface_impact")
+        if not sol.t_events[2].size:
+            return result("propellant_exhausted")
+        burn_time = float(sol.t_events[2][0])
+        state = list(sol.y_events[2][0])
+        after = mass - mass_flow * burn_time
+        delta_v.append(exhaust_speed * math.log(mass / after))
+        duration.append(burn_time)
+        mass, clock = after, clock + burn_time
+        _, _, rp, ra = _elements(state, gm)
+        periapsis.append(rp)
+        apoapsis.append(ra)
+    if periapsis:
+        lowest = min(lowest, periapsis[-1])  # the craft stays on the final orbit
+    return result("ok" if not periapsis or periapsis[-1] >= body_radius else "surface_impact")

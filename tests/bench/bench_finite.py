@@ -94,13 +94,12 @@ def sample(points: int, seed: int) -> dict[str, np.ndarray]:
 
 
 def plans(p: dict[str, np.ndarray], i=slice(None)):
-    """(name, approach periapsis, burn radii, target energies, impulsive burns) per strategy."""
+    """(name, approach periapsis, burn radii, intended orbits (periapsis, apoapsis), impulsive burns) per strategy."""
     gm, v, rt, rp, ra = p["gm"][i], p["v_inf"][i], p["target"][i], p["periapsis"][i], p["apoapsis"][i]
     return [
-        ("direct", rt, [rt], [-gm / (2 * rt)], direct_capture(v, gm, rt).burns),
-        ("two_burn", rp, [rp, rt], [-gm / (rp + rt), -gm / (2 * rt)], two_burn_capture(v, gm, rp, rt).burns),
-        ("three_burn", rp, [rp, ra, rt], [-gm / (rp + ra), -gm / (rt + ra), -gm / (2 * rt)],
-         three_burn_capture(v, gm, rp, rt, ra).burns),
+        ("direct", rt, [rt], [(rt, rt)], direct_capture(v, gm, rt).burns),
+        ("two_burn", rp, [rp, rt], [(rp, rt), (rt, rt)], two_burn_capture(v, gm, rp, rt).burns),
+        ("three_burn", rp, [rp, ra, rt], [(rp, ra), (rt, ra), (rt, rt)], three_burn_capture(v, gm, rp, rt, ra).burns),
     ]
 
 
@@ -109,9 +108,11 @@ def run_vectorized(p):
     out = {}
     for start in range(0, n, BATCH):
         i = slice(start, min(start + BATCH, n))
-        for name, first, radii, energies, burns in plans(p, i):
-            result = fly_capture(p["gm"][i], p["radius"][i], p["soi"][i], p["v_inf"][i], first, radii, energies,
-                                 list(burns), p["thrust"][i], ISP * STANDARD_GRAVITY, MASS)
+        for name, first, radii, orbits, burns in plans(p, i):
+            # aim=False, one pass per burn: the centred model the solve_ivp reference flies (the
+            # aimed kernel does several flights per point; the lead may revise this ratio).
+            result = fly_capture(p["gm"][i], p["radius"][i], p["soi"][i], p["v_inf"][i], first, radii, orbits,
+                                 list(burns), p["thrust"][i], ISP * STANDARD_GRAVITY, MASS, aim=False, passes=1)
             out.setdefault(name, []).append(result)
     return {name: (np.concatenate([r.delta_v for r in rs], axis=1), np.concatenate([r.outcome for r in rs]))
             for name, rs in out.items()}
@@ -121,10 +122,11 @@ def run_reference(p, count):
     out = {name: (np.full((len(radii), count), np.nan), np.zeros(count, dtype=np.int8))
            for name, _, radii, _, _ in plans(p, slice(0, 1))}
     for k in range(count):
-        for name, first, radii, energies, burns in plans(p, k):
+        for name, first, radii, orbits, burns in plans(p, k):
+            gm = float(p["gm"][k])
             result = reference.fly_capture_reference(
-                float(p["gm"][k]), float(p["radius"][k]), float(p["soi"][k]), float(p["v_inf"][k]), float(first),
-                [float(r) for r in radii], [float(e) for e in energies], [float(b) for b in burns],
+                gm, float(p["radius"][k]), float(p["soi"][k]), float(p["v_inf"][k]), float(first),
+                [float(r) for r in radii], [-gm / float(a + b) for a, b in orbits], [float(b) for b in burns],
                 float(p["thrust"][k]), ISP * STANDARD_GRAVITY, MASS,
             )
             out[name][0][:, k] = result.delta_v

@@ -2,6 +2,9 @@
 
 a. Against an independent per-point scipy ``solve_ivp`` reference (``tests/finite_reference.py``)
    on a seeded spread of points, three bodies, three strategies, both steering laws.
+   The reference models centred, unaimed burns: the kernel runs here with ``aim=False`` and
+   one pass per burn (the model before aiming); the aimed model is checked in
+   ``test_finite_aim.py`` against a replay of its flight plans.
 b. Convergence to the impulsive answer as the thrust grows; gravity loss ~ (burn time)^2.
 c. Robbins' small-arc gravity-loss estimate for an inertially fixed, centred burn.
 d. Outcome codes for an engine that cannot capture and for a surface impact.
@@ -47,33 +50,42 @@ def _thrust(thrust_to_weight):
 
 
 def _plan(strategy, gm, v_inf, r_p, r_t, r_a=None):
-    """Approach periapsis, burn radii, target energies and impulsive burns of one strategy.
+    """Approach periapsis, burn radii, intended orbits and impulsive burns of one strategy.
 
-    Energies are those of the intended orbits (vis-viva: -mu / (r1 + r2)); impulsive burns
-    come from the impulsive kernels in ``sweep.physics.capture``.
+    Orbits are the (periapsis, apoapsis) radii intended after each burn; impulsive burns come
+    from the impulsive kernels in ``sweep.physics.capture``.
     """
     if strategy == "direct":
-        return r_t, [r_t], [-gm / (2 * r_t)], list(direct_capture(v_inf, gm, r_t).burns)
+        return r_t, [r_t], [(r_t, r_t)], list(direct_capture(v_inf, gm, r_t).burns)
     if strategy == "two_burn":
-        return (r_p, [r_p, r_t], [-gm / (r_p + r_t), -gm / (2 * r_t)],
-                list(two_burn_capture(v_inf, gm, r_p, r_t).burns))
-    return (r_p, [r_p, r_a, r_t], [-gm / (r_p + r_a), -gm / (r_t + r_a), -gm / (2 * r_t)],
+        return (r_p, [r_p, r_t], [(r_p, r_t), (r_t, r_t)], list(two_burn_capture(v_inf, gm, r_p, r_t).burns))
+    return (r_p, [r_p, r_a, r_t], [(r_p, r_a), (r_t, r_a), (r_t, r_t)],
             list(three_burn_capture(v_inf, gm, r_p, r_t, r_a).burns))
+
+
+def _energies(gm, orbits):
+    """Specific energy of each intended orbit (vis-viva: -mu / (r1 + r2)), what the reference stops on."""
+    return [-gm / (a + b) for a, b in orbits]
+
+
+# The reference models the centred, unaimed burns: the kernel is compared with aim=False and
+# every burn in one pass (no split, no re-flight), which is the model as it was before aiming.
+UNAIMED = {"aim": False, "passes": 1}
 
 
 def _reference(body, v_inf, thrust_to_weight, plan, steering="tangential"):
     gm, radius, soi = body
-    first, radii, energies, burns = plan
+    first, radii, orbits, burns = plan
     return fly_capture_reference(gm, radius, soi, float(v_inf), float(first), [float(r) for r in radii],
-                                 [float(e) for e in energies], [float(b) for b in burns],
+                                 [float(e) for e in _energies(gm, orbits)], [float(b) for b in burns],
                                  float(_thrust(thrust_to_weight)), VE, MASS, steering)
 
 
 def _kernel(body, v_inf, thrust_to_weight, plan, steering="tangential"):
     gm, radius, soi = body
-    first, radii, energies, burns = plan
-    return fly_capture(gm, radius, soi, v_inf, first, radii, energies, burns, _thrust(thrust_to_weight),
-                       VE, MASS, steering)
+    first, radii, orbits, burns = plan
+    return fly_capture(gm, radius, soi, v_inf, first, radii, orbits, burns, _thrust(thrust_to_weight),
+                       VE, MASS, steering, **UNAIMED)
 
 
 # =======================================================================================
@@ -142,10 +154,12 @@ def _comparison(steering):
         ratio = np.array([p[3] for p in chosen])
         plans = [p[4] for p in chosen]
         first = np.array([float(p[0]) for p in plans])
-        radii, energies, burns = ([np.array([float(p[part][k]) for p in plans]) for k in range(len(plans[0][1]))]
-                                  for part in (1, 2, 3))
-        kernel = fly_capture(gm, radius, soi, v_inf, first, radii, energies, burns, _thrust(ratio), VE, MASS,
-                             steering)
+        radii, burns = ([np.array([float(p[part][k]) for p in plans]) for k in range(len(plans[0][1]))]
+                        for part in (1, 3))
+        orbits = [tuple(np.array([float(p[2][k][side]) for p in plans]) for side in (0, 1))
+                  for k in range(len(plans[0][1]))]
+        kernel = fly_capture(gm, radius, soi, v_inf, first, radii, orbits, burns, _thrust(ratio), VE, MASS,
+                             steering, **UNAIMED)
         for i, point in enumerate(chosen):
             reference = _reference(GEOMETRY[point[0]][0], point[2], point[3], point[4], steering)
             results.append((point, reference, {field: value[..., i] for field, value in kernel._asdict().items()}))
@@ -227,9 +241,9 @@ def _direct_losses(body, v_inf, r_t, thrust_to_weight, steering, refinement=1.0)
     """Gravity loss (finite minus impulsive delta-v), burn duration and impulsive delta-v."""
     gm = body[0]
     plan = _plan("direct", gm, v_inf, None, r_t)
-    first, radii, energies, burns = plan
-    result = fly_capture(gm, body[1], body[2], v_inf, first, radii, energies, burns,
-                         _thrust(np.asarray(thrust_to_weight, dtype=float)), VE, MASS, steering, refinement)
+    first, radii, orbits, burns = plan
+    result = fly_capture(gm, body[1], body[2], v_inf, first, radii, orbits, burns,
+                         _thrust(np.asarray(thrust_to_weight, dtype=float)), VE, MASS, steering, refinement, **UNAIMED)
     assert (result.outcome == OK).all()
     impulsive = float(plan[3][0])
     return result.delta_v[0] - impulsive, result.duration[0], impulsive
