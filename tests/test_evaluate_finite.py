@@ -56,8 +56,9 @@ def test_very_high_thrust_recovers_the_impulsive_answer(finite_cube):
     impulsive = cube.delta_v.values
     both = np.isfinite(finite) & np.isfinite(impulsive)
     assert both.sum() > 50
-    # T/W 1000: burns last well under a second; losses are below a mm/s
-    np.testing.assert_allclose(finite[both], impulsive[both], atol=1e-2)
+    # T/W 1000: burns last well under a second and their losses are below a mm/s; the trim that
+    # closes the aim's last <= 50 m (sweep.physics.finite_burn.AIM_TOLERANCE) costs up to a few cm/s
+    np.testing.assert_allclose(finite[both], impulsive[both], atol=5e-2)
     crossing = cube.finite_crossover_v_inf.isel(thrust=-1).values
     reference = cube.crossover_v_inf.values
     valid = np.isfinite(crossing)
@@ -71,9 +72,10 @@ def test_gravity_loss_grows_as_thrust_falls(finite_cube):
     strong, weak = loss.isel(thrust=1).values, loss.isel(thrust=0).values
     both = np.isfinite(strong) & np.isfinite(weak)
     assert both.sum() > 10 and (weak[both] > strong[both]).all()
-    np.testing.assert_allclose(
-        cube.gravity_loss.sum("burn").values[np.isfinite(cube.finite_delta_v.values)],
-        (cube.finite_delta_v - cube.delta_v).values[np.isfinite(cube.finite_delta_v.values)], atol=1e-9)
+    # The burns' losses and the impulsive trim make up the whole difference (the cube's own bookkeeping).
+    flown = np.isfinite(cube.finite_delta_v.values)
+    np.testing.assert_allclose((cube.gravity_loss.sum("burn") + cube.trim_delta_v).values[flown],
+                               (cube.finite_delta_v - cube.delta_v).values[flown], atol=1e-9)
 
 
 def test_finite_crossover_sits_in_the_grid_bracket(finite_cube):
@@ -93,12 +95,29 @@ def test_finite_crossover_sits_in_the_grid_bracket(finite_cube):
     assert checked >= 3
 
 
-def test_weak_engine_is_flagged_not_reported(finite_cube):
-    _, cube = finite_cube
+WEAK_CONFIG = """
+# Test input of our own: an engine far too weak to capture at Mars at these speeds (T/W 0.003).
+name = "weak-test"
+[grid]
+bodies = ["mars"]
+v_inf = [2.0, 6.0]                                # km/s
+target_altitude = [400.0]                         # km
+periapsis_altitude = [250.0, 1000.0]              # km
+thrust_to_weight = [0.003, 1.0]
+[spacecraft]
+specific_impulse = 320.0
+arrival_mass = 1000.0
+"""
+
+
+def test_weak_engine_is_flagged_not_reported():
+    cube = run(parse_config(WEAK_CONFIG, "weak.toml"), workers=1)
     status = cube.finite_status.isel(thrust=0).values
-    engine = np.isin(status, [CODE["engine_cannot_capture"], CODE["propellant_exhausted"], CODE["surface_impact"]])
+    engine = np.isin(status, [CODE["engine_cannot_capture"], CODE["propellant_exhausted"], CODE["surface_impact"],
+                              CODE["below_safe_altitude"]])
     assert engine.any()
-    assert np.isnan(cube.finite_delta_v.isel(thrust=0).values[engine]).all()
+    for name in ("finite_delta_v", "trim_delta_v", "finite_time_to_orbit"):
+        assert np.isnan(cube[name].isel(thrust=0).values[engine]).all()
     # an impulsive infeasibility is carried over unchanged
     impulsive = cube.status.values
     carried = cube.finite_status.isel(thrust=1).values

@@ -221,7 +221,7 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
     import numpy as np
 
     from sweep import parse_config
-    from sweep.engine.finite import _BodyInputs, _run_and_place, finite_chunks, finite_layout
+    from sweep.engine.finite import _BodyInputs, _Engine, _run_and_place, finite_chunks, finite_layout
     from sweep.engine.impulsive import plan_body
     from sweep.model.strategies import STRATEGIES
     from tests.test_evaluate_finite import FINITE_CONFIG
@@ -232,8 +232,8 @@ def test_a_killed_runs_queued_chunks_are_skipped_by_its_workers():
                        plan.geometry.periapsis_radius, plan.geometry.target_radius,
                        np.asarray(plan.geometry.apoapsis_radius), plan.status)
     chunk = finite_chunks(config)[0]
-    arguments = (body, config.v_inf[chunk.v_inf_start:chunk.v_inf_stop], config.thrust, 320.0 * 9.80665,
-                 config.arrival_mass, config.steering, tuple(STRATEGIES))
+    arguments = (body, config.v_inf[chunk.v_inf_start:chunk.v_inf_stop], config.thrust, _Engine.of(config),
+                 tuple(STRATEGIES))
 
     def fresh():
         return {name: np.full(shape, -7.0).astype(dtype) for name, (shape, dtype) in finite_layout(config).items()}

@@ -71,7 +71,7 @@ SAFE_TOLERANCE = 100.0  # m: passing below the safe radius by more than this is 
 MAX_PASSES = 8  # "auto" splits a burn over at most this many passes of its apsis
 TRIM_SPLIT = 1.0  # m/s: "auto" splits further where the trim would exceed this
 SPLIT_ARC = np.radians(10.0)  # "auto" splits only burns sweeping a wider arc than this per pass
-_AIM_STEPS = 10  # Broyden iterations at most per burn (after the first shot and one difference)
+_AIM_STEPS = 12  # Broyden iterations at most per pass (after the first shot and the differences)
 _MAX_TURN = 0.5  # rad: the aim turns a later burn's thrust at most this far from its law, at the burn's ends
 _ROUND = 1e-3  # intended orbits of smaller eccentricity are aimed as circles (end on them, horizontal)
 
@@ -748,7 +748,8 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
             free = np.stack([np.full(points.size, aim), aim & round_], axis=1)
             if first:
                 start = np.stack([approach[points], np.zeros(points.size)], axis=1)
-                limit = np.stack([0.5 * (approach[points] - q.body_radius) + 1e4, arc + 1e3], axis=1)
+                # A long braking arc may need the approach several times higher: a step may double the altitude.
+                limit = np.stack([approach[points] - q.body_radius + 1e4, arc + 1e3], axis=1)
                 lower = np.stack([q.body_radius + 1.0, np.full(points.size, -np.inf)], axis=1)
                 step = np.stack([np.ones(points.size), 0.05 * arc + 1.0], axis=1)
                 measure = (False, True)  # the reached periapsis follows the approach's about one for one
@@ -882,10 +883,13 @@ def fly_capture(
         raise ValueError(f"passes must be a positive integer or 'auto', got {passes!r}")
     arrays = np.broadcast_arrays(
         *(np.asarray(a, dtype=float) for a in (gm, body_radius, soi_radius, v_inf, periapsis_radius,
-                                                thrust, exhaust_speed, initial_mass))
+                                                thrust, exhaust_speed, initial_mass,
+                                                np.nan if safe_radius is None else safe_radius,
+                                                np.nan if split_apoapsis is None else split_apoapsis))
     )
     shape = arrays[0].shape
-    gm, body_radius, soi_radius, v_inf, approach, thrust, exhaust_speed, mass = (np.ravel(a).copy() for a in arrays)
+    gm, body_radius, soi_radius, v_inf, approach, thrust, exhaust_speed, mass, safe, split = (
+        np.ravel(a).copy() for a in arrays)
     n, burns = gm.size, len(burn_radii)
 
     def flat(value):
@@ -893,8 +897,7 @@ def fly_capture(
 
     radii = [flat(r) for r in burn_radii]
     orbit_list = [(flat(a), flat(b)) for a, b in orbits]
-    safe = body_radius.copy() if safe_radius is None else flat(safe_radius)
-    split = np.full(n, np.nan) if split_apoapsis is None else flat(split_apoapsis)
+    safe = body_radius.copy() if safe_radius is None else safe
     periapsis, apoapsis = orbit_list[0]
     splittable = np.ones((burns, n), dtype=bool)
     splittable[0] = split > apoapsis * (1.0 + 1e-9)  # a capture splits only into a longer ellipse than its own
