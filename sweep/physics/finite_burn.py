@@ -14,13 +14,54 @@ Model
   for a burn that lowers the orbital energy (braking), along it for a burn that raises it.
   ``"inertial"``: a fixed direction, the velocity direction the impulsive burn would have at
   its apsis (with the same sign rule); used to compare with Robbins' estimate.
-* Centring rule: each burn's ignition is placed half of its *impulsive-equivalent* burn time
+* Ignition: half of the burn's *impulsive-equivalent* time
   :math:`t_b = (m v_e / T)(1 - e^{-\Delta v_{imp}/v_e})` before the apsis where the impulsive
   burn would be made (the approach periapsis for the first burn; for later burns the apsis of
-  the orbit actually reached that lies nearest the impulsive burn radius). Where that moment
-  has already passed when the previous burn ends, the burn starts at once.
-* A burn ends when the orbit's specific energy :math:`v^2/2 - \mu/r` reaches that of the
-  intended orbit; the orbit then reached (periapsis, apoapsis) is reported as it is.
+  the orbit actually reached that lies nearest the burn radius), moved by the aim below. Where
+  that moment has already passed when the previous burn ends, the burn starts at once.
+* A burn ends when the orbit's specific energy :math:`v^2/2 - \mu/r` reaches its intended
+  orbit's, :math:`-\mu / (r_p + r_a)`.
+
+Aim
+---
+Every burn is aimed, all points in lockstep by Broyden's method ([4]_), so that the orbit it
+reaches has the intended apsides within ``AIM_TOLERANCE`` (50 m on each miss):
+
+* the first burn by the approach periapsis it is flown with (which may lie well above the
+  impulsive one: the braking arc then sinks to the intended periapsis rather than below it);
+* every later burn by a turn of the thrust from its steering law at a constant rate through
+  mid-burn, :math:`\delta = \dot\delta\,(t - t_{ign} - t_b/2)`, held at :math:`\pm 0.5` rad
+  beyond: a turn of one sign before the apsis and the other after changes the eccentricity at
+  first order, which shifting the ignition of a burn centred on an apsis cannot;
+* and, where the intended orbit is a circle (eccentricity below 1e-3), also by the ignition
+  time, so that the burn ends on the circle, horizontal.
+
+The miss of an ellipse is the radius of its apsis on the burn's side against the intended
+one; the miss of a circle is the eccentricity vector times the semi-major axis, along and
+across the position where the burn ends. What aiming cannot remove is closed by an impulsive
+*trim* to the exact target orbit (any orientation): the cheaper order of two apsis changes,
+costed with vis-viva ([2]_ Ch. 2), reported apart and added to the total by the engine.
+
+Split burns
+-----------
+A burn may be split over several passes of its apsis: each pass keeps the burn's apsis and
+takes an equal share of the speed change there; a split capture's first pass at least enters
+the long ellipse reaching ``split_apoapsis``. Each pass is aimed like a later burn. With
+``passes="auto"`` a sequence that fails for a reason shorter burns may cure (it cannot capture,
+it hits the surface, it passes below the safe radius) or needs a trim above ``TRIM_SPLIT``
+(1 m/s) is flown again with the passes of one burn doubled, up to ``max_passes``: of the burns
+up to the one that failed, the one sweeping the widest arc per pass (its impulsive-equivalent
+time at the angular rate of its apsis), if that exceeds 10 degrees. The first flight that flies
+with a small trim is kept; else the cheapest that flies; else the last failure.
+
+Safety
+------
+The lowest radius reached is tracked through the whole sequence: each RK4 step's end, the
+osculating periapsis where the radial velocity turns outward within a step, the approach
+periapsis if ignition comes after it, the periapsis of any coast that passes one, the orbit
+finally reached and the trim's intermediate orbit. A sequence passing more than
+``SAFE_TOLERANCE`` (0.1 km) below the safe radius is ``below_safe_altitude``; one that meets
+the surface is ``surface_impact``.
 
 References
 ----------
