@@ -136,5 +136,25 @@ def test_cli_run_with_thrust_axis_writes_cf_cube_and_gravity_loss_section(config
         str(out / "finite-test.nc"), ["cf:1.11"], 0, "normal", output_filename=str(report), output_format="text")
     assert passed and not errors, report.read_text()
     text = (out / "summary.md").read_text()
-    assert "With finite burns" in text and "median (max) gravity loss" in text
+    assert "With finite burns" in text and "median (max) loss incl. trim" in text and "max trim" in text
     assert (out / "finite_crossover.csv").stat().st_size > 0 and (out / "finite_losses.csv").stat().st_size > 0
+
+
+def test_finite_table_counts_wins_out_of_points_flown_and_the_largest_trim(finite_cube):
+    # The summary's finite table against the cube it reads (its own bookkeeping, counted here independently).
+    from sweep.report.summary import summary_tables
+
+    _, cube = finite_cube
+    table = summary_tables(cube)["finite_losses"]
+    names = list(cube.strategy_name.values)
+    for (body, target, thrust), group in table.groupby(["body", "target_altitude_km", "thrust_n"]):
+        here = cube.isel(body=list(cube.body_name.values).index(body)).sel(target_altitude=target, thrust=thrust)
+        decided = int((here.finite_best_strategy >= 0).sum())
+        assert group.points_won.sum() == decided
+        assert (group.points_any_flown == decided).all()
+        for _, row in group.iterrows():
+            s = names.index(row.strategy)
+            assert row.points_flown == int(np.isfinite(here.finite_delta_v.isel(strategy=s)).sum())
+            trim = here.trim_delta_v.isel(strategy=s).values
+            if np.isfinite(trim).any():
+                assert row.max_trim_m_s == pytest.approx(float(np.nanmax(trim)))

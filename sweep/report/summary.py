@@ -184,12 +184,16 @@ def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
                                        *(["median_two_burn_first_share_deg"] if split_known else [])])
 
 
+# Why a strategy feasible with impulsive burns does not fly with finite ones (finite_status names).
+_NOT_FLOWN = ("engine_cannot_capture", "propellant_exhausted", "surface_impact", "below_safe_altitude")
+
+
 def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
-    """Finite-burn crossovers per periapsis and thrust; wins and gravity losses per thrust."""
+    """Finite-burn crossovers per periapsis and thrust; wins, losses, trims and failures per thrust."""
     bodies, names = cube_labels(dataset)
     challengers = challenger_names(names)
     meanings = dataset["finite_status"].attrs["flag_meanings"].split()
-    engine_codes = [meanings.index(m) for m in ("engine_cannot_capture", "propellant_exhausted", "surface_impact")]
+    reasons = [name for name in _NOT_FLOWN if name in meanings]
     thrusts, ratios = dataset["thrust"].values, dataset["thrust_to_weight"].values
     finite = ("strategy", *_SPEED_PERIAPSIS, "thrust")
     crossing, losses = [], []
@@ -199,6 +203,8 @@ def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
         for t, target in enumerate(dataset["target_altitude"].values):
             here = cube.isel(target_altitude=t)  # one target at a time: memory is v_inf x periapsis x thrust
             loss = (here["finite_delta_v"] - here["delta_v"]).transpose(*finite).values
+            trim = (array(here, "trim_delta_v", *finite) if "trim_delta_v" in here
+                    else np.full(loss.shape, np.nan))
             best = array(here, "finite_best_strategy", *_SPEED_PERIAPSIS, "thrust")
             status = array(here, "finite_status", *finite)
             for f, thrust in enumerate(thrusts):
@@ -206,22 +212,29 @@ def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
                     crossing.append((body, target, periapsis, thrust, ratios[f],
                                      *(float(speeds[n][t, p, f]) for n in challengers)))
                 block = best[..., f]
-                feasible = int((block >= 0).sum())
+                decided = int((block >= 0).sum())  # points where at least one strategy flies
                 for s, name in enumerate(names):
                     values = loss[s, ..., f]
                     flown = values[np.isfinite(values)]
-                    engine = np.isin(status[s, ..., f], engine_codes).mean()
+                    trims = trim[s, ..., f][np.isfinite(trim[s, ..., f])]
+                    counts = [int((status[s, ..., f] == meanings.index(r)).sum()) for r in reasons]
                     won = int((block == s).sum())
-                    losses.append((body, target, thrust, ratios[f], name, won, won / feasible if feasible else np.nan,
+                    losses.append((body, target, thrust, ratios[f], name, won, decided, int(flown.size),
+                                   won / decided if decided else np.nan,
                                    float(np.median(flown)) if flown.size else np.nan,
-                                   float(flown.max()) if flown.size else np.nan, float(engine)))
+                                   float(flown.max()) if flown.size else np.nan,
+                                   float(np.median(trims)) if trims.size else np.nan,
+                                   float(trims.max()) if trims.size else np.nan,
+                                   sum(counts) / status[s, ..., f].size, *counts))
     return {
         "finite_crossover": pd.DataFrame(crossing, columns=[
             "body", "target_altitude_km", "periapsis_altitude_km", "thrust_n", "thrust_to_weight",
             *_crossover_columns(challengers)]),
         "finite_losses": pd.DataFrame(losses, columns=[
             "body", "target_altitude_km", "thrust_n", "thrust_to_weight", "strategy", "points_won",
-            "share_of_feasible", "median_gravity_loss_m_s", "max_gravity_loss_m_s", "share_engine_limited"]),
+            "points_any_flown", "points_flown", "share_of_feasible", "median_gravity_loss_m_s",
+            "max_gravity_loss_m_s", "median_trim_m_s", "max_trim_m_s", "share_engine_limited",
+            *(f"points_{r}" for r in reasons)]),
     }
 
 
@@ -313,19 +326,27 @@ def _finite_section(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -
     dive = lowest_periapsis_below(cube, [_DIVE], t) if _DIVE in names else None
     losses = tables["finite_losses"]
     here = losses[(losses.body == body) & (losses.target_altitude_km == target)]
-    lines = ["With finite burns (gravity losses included; see the model in the cube's attributes):", ""]
-    header = "| thrust | T/W | points won: " + " / ".join(names) + " | median (max) gravity loss, m/s: " + \
-        " / ".join(names) + " | engine-limited |"
-    lines += [header, "|---:|---:|---|---|---|"]
+    lines = ["With finite burns (aimed to end on the target orbit; gravity losses and the impulsive trim that "
+             "closes the aim included; see the model in the cube's attributes):", ""]
+    header = ("| thrust | T/W | points won of those any strategy flies: " + " / ".join(names)
+              + " | median (max) loss incl. trim, m/s: " + " / ".join(names)
+              + " | max trim, m/s | not flown (cannot capture, out of propellant, surface, below safe altitude): "
+              + " / ".join(names) + " |")
+    lines += [header, "|---:|---:|---|---|---|---|"]
     sentences = []
     for f, thrust in enumerate(cube["thrust"].values):
         rows = here[here.thrust_n == thrust].set_index("strategy").loc[names]
         ratio = float(cube["thrust_to_weight"].values[f])
-        won = " / ".join(f"{share:.0%}" if np.isfinite(share) else "-" for share in rows.share_of_feasible)
+        decided = int(rows.points_any_flown.iloc[0])
+        won = " / ".join(f"{int(w):,}" for w in rows.points_won) + f" of {decided:,}"
         loss = " / ".join("-" if not np.isfinite(m) else f"{m:.0f} ({x:.0f})"
                           for m, x in zip(rows.median_gravity_loss_m_s, rows.max_gravity_loss_m_s, strict=True))
-        limited = " / ".join(f"{share:.0%}" for share in rows.share_engine_limited)
-        lines.append(f"| {thrust:,.0f} N | {ratio:.3g} | {won} | {loss} | {limited} |")
+        trim = float(np.nanmax(rows.max_trim_m_s.to_numpy(dtype=float), initial=-np.inf))
+        trim_text = "-" if not np.isfinite(trim) else f"{trim:.2f}"
+        counts = [c for c in rows.columns if c.startswith("points_") and c not in
+                  ("points_won", "points_any_flown", "points_flown")]
+        failed = " / ".join(", ".join(f"{int(row[c]):,}" for c in counts) for _, row in rows.iterrows())
+        lines.append(f"| {thrust:,.0f} N | {ratio:.3g} | {won} | {loss} | {trim_text} | {failed} |")
         if dive is not None:
             at = {"target_altitude": t, "periapsis_altitude": dive}
             finite = float(cube[crossover_variable(_DIVE, finite=True)].isel(at).isel(thrust=f))
@@ -337,8 +358,11 @@ def _finite_section(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -
     lines.append("")
     if sentences:
         lines += ["In short: " + "; ".join(sentences) + ".", ""]
-    lines.append("Engine-limited: share of the grid where the engine cannot capture, runs out of mass, or the "
-                 "trajectory meets the surface (per strategy).")
+    lines.append("Not flown: grid points (speed x periapsis) where the strategy is feasible with impulsive burns but "
+                 "its finite-burn sequence, aimed as well as it can be and split over periapsis passes where that "
+                 "helps, cannot capture before leaving the sphere of influence, runs out of propellant, meets the "
+                 "surface, or passes below the body's lowest safe periapsis altitude. Max trim: the largest impulsive "
+                 "clean-up the aim left, over all strategies.")
     lines.append("")
     return lines
 
