@@ -48,13 +48,16 @@ _KM = 1.0e3  # m per km
 _FINITE_DIMS = {v.name: v.dims for v in cube_variables(()) if v.checkpointed}
 _OUTCOME_CODE = np.array([0] + [status_code(name) for name in OUTCOMES[1:]], dtype=np.int8)
 FINITE_STAGES = ("finite", "finite_crossover")
-_ROOT_STEPS = 40  # Illinois iterations at most; each shrinks the bracket superlinearly
+# Illinois iterations at most: each flies both strategies at every open bracket, a dear flight with
+# aimed, possibly split burns; what is still open after them takes the regula falsi estimate of
+# its last bracket (the grid bracket narrowed by each step).
+_ROOT_STEPS = 4
 # Stop once the cost difference is within the finite model's stated agreement with an independent
 # integration (0.05 m/s; the aim's own tolerance moves the cost by about 0.01 m/s), or the bracket
 # is narrower than 1 m/s of arrival speed (1e-3 km/s, the precision a crossover is read at).
 _ROOT_COST = 0.05  # m/s
 _ROOT_WIDTH = 1.0  # m/s
-_BRACKETS_PER_TASK = 512  # crossover brackets solved per worker task
+_BRACKETS_PER_TASK = 128  # crossover brackets solved per worker task (small: the dear ones spread over workers)
 _SHM_HEADROOM = 16 << 20  # bytes of /dev/shm left to others (and to joblib's own memmaps) at the least
 _MIN_CHUNKS = 16  # finite-burn chunks per sweep at least, where the grid has that many arrival speeds
 
@@ -276,8 +279,8 @@ def _illinois(function, low, high, f_low, f_high):
     """
     Vectorized regula falsi, Illinois variant (an end kept twice running has its value halved).
 
-    ``function(x, index)`` evaluates brackets ``index`` at ``x``. Returns the roots; NaN where
-    the model fails inside a bracket or the iterations run out.
+    ``function(x, index)`` evaluates brackets ``index`` at ``x``. Returns the roots: the linear
+    estimate in the last bracket where the iterations run out; NaN where the model fails inside.
     """
     low, high, f_low, f_high = (np.array(a, dtype=float) for a in (low, high, f_low, f_high))
     root = np.full(low.shape, np.nan)
@@ -300,6 +303,8 @@ def _illinois(function, low, high, f_low, f_high):
         f_high[active] = np.where(move_low, np.where(last == 1, 0.5 * fb, fb), value)
         kept[active] = np.where(move_low, 1, -1)
         active = active[~(done | failed)]
+    a, b, fa, fb = low[active], high[active], f_low[active], f_high[active]
+    root[active] = b - fb * (b - a) / (fb - fa)
     return root
 
 

@@ -297,9 +297,12 @@ def _finite_crossover(strategy, reference: str) -> Variable:
     def attrs(config) -> dict[str, Any]:
         v_min, v_max = float(config.v_inf.min()), float(config.v_inf.max())
         return {"valid_min": v_min, "valid_max": v_max,
-                "comment": f"first sign change of the cost difference on the grid, refined by regula falsi "
-                f"(Illinois) on the finite-burn model to 1e-3 m/s; searched {v_min:g} to {v_max:g} km s-1 (the "
-                "grid); NaN where no sign change or a strategy is infeasible"}
+                "comment": f"first sign change of the cost difference (trims included) on the grid, refined by "
+                "regula falsi (Illinois) on the finite-burn model until the difference is within 0.05 m/s or the "
+                "bracket is narrower than 1 m/s, at most 4 steps, then the linear estimate in the last bracket; "
+                "the aim starts between the bracket ends' aims, with their passes where both ends agree; searched "
+                f"{v_min:g} to {v_max:g} km s-1 (the grid); NaN where no sign change, a strategy is infeasible, or "
+                "the model fails inside the bracket"}
 
     return Variable(strategy.finite_crossover_variable, ("body", "target_altitude", "periapsis_altitude", "thrust"),
                     "km s-1", f"arrival speed at which {strategy.name} and {reference} need the same finite-burn "
