@@ -25,7 +25,7 @@ Model
 Aim
 ---
 Every burn is aimed, all points in lockstep by Broyden's method ([4]_), so that the orbit it
-reaches has the intended apsides within ``AIM_TOLERANCE`` (50 m on each miss):
+reaches has the intended apsides within 0.1 km (``AIM_TOLERANCE``, 70 m on each miss):
 
 * the first burn by the approach periapsis it is flown with (which may lie well above the
   impulsive one: the braking arc then sinks to the intended periapsis rather than below it);
@@ -107,12 +107,15 @@ _MAX_STEPS = 200_000  # a burn still going after this many steps is reported pro
 _LEAST_SPEED = 1e-3  # m/s: floor on the speed dividing tangential thrust (no direction at rest)
 _RESERVE = 1e-3  # fraction of the arrival mass that cannot be burned (propellant_exhausted below it)
 
-AIM_TOLERANCE = 50.0  # m: the aim stops once the orbit reached misses the intended apsides by less
+# m: the aim stops once each miss is below this; a circle's two misses together then put its
+# apsides within sqrt(2) x 70 m < 0.1 km of the intended radius
+AIM_TOLERANCE = 70.0
 SAFE_TOLERANCE = 100.0  # m: passing below the safe radius by more than this is below_safe_altitude
 MAX_PASSES = 8  # "auto" splits a burn over at most this many passes of its apsis
 TRIM_SPLIT = 1.0  # m/s: "auto" splits further where the trim would exceed this
 SPLIT_ARC = np.radians(10.0)  # "auto" splits only burns sweeping a wider arc than this per pass
 _AIM_STEPS = 12  # Broyden iterations at most per pass (after the first shot and the differences)
+_STALL = 3  # iterations without the best miss shrinking by a tenth before the aim of a point stops
 _MAX_TURN = 0.5  # rad: the aim turns a later burn's thrust at most this far from its law, at the burn's ends
 _ROUND = 1e-3  # intended orbits of smaller eccentricity are aimed as circles (end on them, horizontal)
 
@@ -599,16 +602,20 @@ def _better(new_miss, new_outcome, old_miss, old_outcome):
     return (new_ok & ~old_ok) | ((new_ok == old_ok) & smaller)
 
 
-def _aim(fly, start, free, measure, first_step, limit, lower):
+def _aim(fly, start, free, measure, first_step, limit, bounds):
     """
     Aim by Broyden's method, all points in lockstep ([4]_): find ``x`` (n, 2) whose flight
     ``fly(x, index) -> (flight dict, misses (m, 2))`` misses by at most ``AIM_TOLERANCE`` in
     each coordinate a point may move (``free``, (n, 2) bool). The first Jacobian is the
     identity but for the columns ``measure`` (2 bools), measured by a difference of
-    ``first_step`` (n, 2) where that coordinate is free. Steps are clipped to ``limit`` (n, 2);
-    ``x`` stays above ``lower`` (n, 2). A step whose flight fails (NaN miss) is halved and tried
-    again. Returns the best flight found (flown beats failed, then the smaller miss), its ``x``.
+    ``first_step`` (n, 2) where that coordinate is free. Steps are clipped to ``limit`` (n, 2),
+    or twice the miss for an unmeasured coordinate (its miss is in its own units, one for one);
+    ``x`` stays within ``bounds`` (lower, upper), each (n, 2). A step whose flight fails (NaN
+    miss) is halved and tried again. A point whose best miss has not shrunk by a tenth in
+    ``_STALL`` iterations is left as it is: its burn cannot reach the orbit this way (a split
+    may). Returns the best flight found (flown beats failed, then the smaller miss), its ``x``.
     """
+    lower, upper = bounds
     n = start.shape[0]
     x = start.copy()
     best, miss = fly(x, np.arange(n))
@@ -620,17 +627,25 @@ def _aim(fly, start, free, measure, first_step, limit, lower):
         return ~np.isnan(miss[index]).any(axis=1) & (np.where(free[index], np.abs(miss[index]), 0.0)
                                                      > AIM_TOLERANCE).any(axis=1)
 
-    for column in (0, 1):
-        index = np.flatnonzero(free[:, column] & open_(np.arange(n))) if measure[column] else np.zeros(0, int)
-        if index.size:
+    # The measured columns' differences, flown together in one call.
+    shots = [(column, np.flatnonzero(free[:, column] & open_(np.arange(n)))) for column in (0, 1) if measure[column]]
+    shots = [(column, index) for column, index in shots if index.size]
+    if shots:
+        trials = []
+        for column, index in shots:
             trial = x[index].copy()
             trial[:, column] += first_step[index, column]
-            _, shifted = fly(trial, index)
-            slope = (shifted - miss[index]) / first_step[index, column, None]
+            trials.append(trial)
+        _, shifted = fly(np.concatenate(trials), np.concatenate([index for _, index in shots]))
+        start = 0
+        for column, index in shots:
+            slope = (shifted[start:start + index.size] - miss[index]) / first_step[index, column, None]
+            start += index.size
             usable = np.isfinite(slope).all(axis=1) & (np.abs(slope[:, column]) > 1e-9)
             jacobian[index[usable], :, column] = slope[usable]
     active = np.flatnonzero(open_(np.arange(n)))
     halving = np.zeros((n, 2))
+    stalled = np.zeros(n, dtype=int)
     for _ in range(_AIM_STEPS):
         if active.size == 0:
             break
@@ -645,8 +660,9 @@ def _aim(fly, start, free, measure, first_step, limit, lower):
                                 j[:, 0, 0] * f[:, 1] - j[:, 1, 0] * f[:, 0]], axis=1) / det[:, None]
         retry = (halving[active] != 0.0).any(axis=1)
         step = np.where(retry[:, None], 0.5 * halving[active], newton)
-        step = np.where(free_a & np.isfinite(step), np.clip(step, -limit[active], limit[active]), 0.0)
-        trial = np.maximum(x[active] + step, lower[active])
+        reach = np.where(measure, limit[active], np.maximum(limit[active], 2.0 * np.abs(miss[active])))
+        step = np.where(free_a & np.isfinite(step), np.clip(step, -reach, reach), 0.0)
+        trial = np.clip(x[active] + step, lower[active], upper[active])
         step = trial - x[active]
         flight, new = fly(trial, active)
         failed = np.isnan(new).any(axis=1)
@@ -661,10 +677,14 @@ def _aim(fly, start, free, measure, first_step, limit, lower):
             jacobian[index] += correction[:, :, None] * moved[:, None, :]
             x[index], miss[index] = trial[ok], new[ok]
             better = _better(new[ok], flight["outcome"][ok], best_miss[index], best["outcome"][index])
+            size_new = np.where(free[index], np.abs(new[ok]), 0.0).max(axis=1)
+            size_best = np.where(free[index], np.abs(best_miss[index]), 0.0).max(axis=1)
+            stalled[index] = np.where(size_new < 0.9 * size_best, 0, stalled[index] + 1)
             for key, value in flight.items():
                 best[key][..., index[better]] = value[..., ok[better]]
             best_x[index[better]], best_miss[index[better]] = x[index[better]], miss[index[better]]
-        active = active[failed | open_(active)]
+        stalled[active[failed]] += 1
+        active = active[(failed | open_(active)) & (stalled[active] < _STALL)]
     return best, best_x
 
 
@@ -791,16 +811,19 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
                 start = np.stack([approach[points], np.zeros(points.size)], axis=1)
                 # A long braking arc may need the approach several times higher: a step may double the altitude.
                 limit = np.stack([approach[points] - q.body_radius + 1e4, arc + 1e3], axis=1)
-                lower = np.stack([q.body_radius + 1.0, np.full(points.size, -np.inf)], axis=1)
+                bounds = (np.stack([q.body_radius + 1.0, np.full(points.size, -np.inf)], axis=1),
+                          np.full((points.size, 2), np.inf))
                 step = np.stack([np.ones(points.size), 0.05 * arc + 1.0], axis=1)
                 measure = (False, True)  # the reached periapsis follows the approach's about one for one
             else:
                 start = np.zeros((points.size, 2))
                 limit = np.stack([np.full(points.size, _MAX_TURN), arc + 1e3], axis=1)
-                lower = np.full((points.size, 2), -np.inf)
+                # The turn is held at its limit past +-_MAX_TURN: twice that at the ends is as far as it acts.
+                bounds = (np.stack([np.full(points.size, -2 * _MAX_TURN), np.full(points.size, -np.inf)], axis=1),
+                          np.stack([np.full(points.size, 2 * _MAX_TURN), np.full(points.size, np.inf)], axis=1))
                 step = np.stack([np.full(points.size, 0.01), 0.05 * arc + 1.0], axis=1)
                 measure = (True, True)
-            leg, x = _aim(fly, start, free, measure, step, limit, lower)
+            leg, x = _aim(fly, start, free, measure, step, limit, bounds)
             failed_at[points[leg["outcome"] != 0]] = k
             for key in flight:
                 flight[key][points] = leg[key]
