@@ -179,6 +179,7 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, engine: _Engine, strategies
                     "reached_periapsis_altitude": (result.periapsis_radius[k] - body.radius) / _KM,
                     "reached_apoapsis_altitude": (result.apoapsis_radius[k] - body.radius) / _KM,
                     "ignition_time": result.ignition[k],
+                    "pitch_rate": np.degrees(result.pitch_rate[k]),
                     "burn_passes": result.passes[k],
                 }
             for name, value in values.items():

@@ -240,6 +240,9 @@ _FINITE_VARIABLES = (
              "each finite burn", "finite", when="thrust", attrs=_finite_attrs()),
     Variable("ignition_time", _FINITE_PER_BURN, "s", "ignition of each finite burn (its first pass), from the aimed "
              "approach periapsis passage", "finite", when="thrust", attrs=_finite_attrs()),
+    Variable("pitch_rate", _FINITE_PER_BURN, "degree s-1", "rate at which the aim turns each finite burn's thrust "
+             "from the velocity, through mid-burn (its first pass; 0 for the first burn)", "finite", when="thrust",
+             attrs=_finite_attrs()),
     Variable("burn_passes", _FINITE_PER_BURN, "1", "passes of its apsis each finite burn is split over", "finite",
              dtype="int8", when="thrust", attrs=_finite_attrs(comment="0 for burns a strategy does not make")),
     Variable("aimed_periapsis_altitude", _FINITE, "km", "approach periapsis altitude the first finite burn is "
