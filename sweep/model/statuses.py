@@ -39,6 +39,8 @@ STATUSES: tuple[Status, ...] = (
            "mean surface"),
     Status("below_safe_altitude", "finite burn: the sequence, aimed as well as it can be, passes below the body's "
            "lowest safe periapsis altitude (by more than 0.1 km) somewhere: approach, burns, coasts or trim"),
+    Status("aim_not_met", "finite burn: aimed and split as far as allowed, the burns end so far from the target "
+           "orbit that the trim closing the gap would itself be a long burn (over 10 degrees of arc)"),
 )
 
 

@@ -61,7 +61,9 @@ osculating periapsis where the radial velocity turns outward within a step, the 
 periapsis if ignition comes after it, the periapsis of any coast that passes one, the orbit
 finally reached and the trim's intermediate orbit. A sequence passing more than
 ``SAFE_TOLERANCE`` (0.1 km) below the safe radius is ``below_safe_altitude``; one that meets
-the surface is ``surface_impact``.
+the surface is ``surface_impact``. A sequence whose trim would itself be a long burn (sweeping
+more than 10 degrees of the target orbit at its periapsis speed, at the engine's thrust) is
+``aim_not_met``: costing it as an impulse would not hold, and the orbit was not reached.
 
 References
 ----------
@@ -120,9 +122,11 @@ _MAX_TURN = 0.5  # rad: the aim turns a later burn's thrust at most this far fro
 _ROUND = 1e-3  # intended orbits of smaller eccentricity are aimed as circles (end on them, horizontal)
 
 # Outcome codes of a sequence (index = code).
-OUTCOMES = ("ok", "engine_cannot_capture", "propellant_exhausted", "surface_impact", "below_safe_altitude")
+OUTCOMES = ("ok", "engine_cannot_capture", "propellant_exhausted", "surface_impact", "below_safe_altitude",
+            "aim_not_met")
 # Failures a capture split over more periapsis passes may cure: shorter burns stay closer to the periapsis.
-_SPLIT_FIXES = [OUTCOMES.index(name) for name in ("engine_cannot_capture", "surface_impact", "below_safe_altitude")]
+_SPLIT_FIXES = [OUTCOMES.index(name) for name in ("engine_cannot_capture", "surface_impact", "below_safe_altitude",
+                                                 "aim_not_met")]
 
 
 class FiniteCapture(NamedTuple):
@@ -140,7 +144,9 @@ class FiniteCapture(NamedTuple):
     lowest_radius: np.ndarray  # m, lowest radius reached anywhere in the sequence (trim included)
     approach_periapsis: np.ndarray  # m, the approach periapsis the first burn is aimed with
     passes: np.ndarray  # int8, (burns, n): passes of its apsis each burn is split over
-    pass_ignition: np.ndarray  # s, (burns, passes, n): ignition of each pass of each burn (NaN beyond its passes)
+    # s, (burns, passes, n): ignition of each pass of each burn (NaN beyond its passes; for a failed
+    # sequence, the passes as flown until it failed)
+    pass_ignition: np.ndarray
     pass_pitch_rate: np.ndarray  # rad/s, (burns, passes, n)
     pass_turn_centre: np.ndarray  # s from the approach periapsis passage: when the turn passes through zero
     pass_energy: np.ndarray  # J/kg: the specific energy each pass ends on
@@ -840,9 +846,14 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
     lowest = np.minimum(flight["lowest"], np.where(ok, np.minimum(periapsis, trim_lowest), np.inf))
     outcome[ok & (periapsis < p.body_radius)] = OUTCOMES.index("surface_impact")
     outcome[(outcome == 0) & (lowest < safe_radius - SAFE_TOLERANCE)] = OUTCOMES.index("below_safe_altitude")
-    failed = outcome != 0
-    for key in _RECORD:
-        out[key][:, :, failed] = np.nan
+    # The trim is costed as an impulse: it must be a short burn itself, sweeping at most SPLIT_ARC of
+    # the target orbit at its periapsis speed; a longer one means the aim did not meet the orbit.
+    target_periapsis, target_apoapsis = plan.orbits[-1]
+    with np.errstate(invalid="ignore"):
+        trim_time = impulsive_burn_time(trim, flight["mass"], p.thrust, p.exhaust_speed)
+        trim_arc = _speed_on(p.gm, target_periapsis, target_periapsis, target_apoapsis) / target_periapsis * trim_time
+    outcome[(outcome == 0) & (trim_arc > SPLIT_ARC)] = OUTCOMES.index("aim_not_met")
+    failed = outcome != 0  # its passes stay as flown up to the failure: the engine reports none of them
     out.update(time=np.where(failed, np.nan, flight["clock"]), outcome=outcome, trim=np.where(failed, np.nan, trim),
                lowest=lowest, passes=plan.counts.astype(np.int8), failed_at=failed_at)
     return out

@@ -185,7 +185,7 @@ def _plane_change_table(dataset: xr.Dataset) -> pd.DataFrame:
 
 
 # Why a strategy feasible with impulsive burns does not fly with finite ones (finite_status names).
-_NOT_FLOWN = ("engine_cannot_capture", "propellant_exhausted", "surface_impact", "below_safe_altitude")
+_NOT_FLOWN = ("engine_cannot_capture", "propellant_exhausted", "surface_impact", "below_safe_altitude", "aim_not_met")
 
 
 def _finite_tables(dataset: xr.Dataset) -> dict[str, pd.DataFrame]:
@@ -330,8 +330,8 @@ def _finite_section(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -
              "closes the aim included; see the model in the cube's attributes):", ""]
     header = ("| thrust | T/W | points won of those any strategy flies: " + " / ".join(names)
               + " | median (max) loss incl. trim, m/s: " + " / ".join(names)
-              + " | max trim, m/s | not flown (cannot capture, out of propellant, surface, below safe altitude): "
-              + " / ".join(names) + " |")
+              + " | max trim, m/s | not flown (cannot capture, out of propellant, surface, below safe altitude, "
+              "aim not met): " + " / ".join(names) + " |")
     lines += [header, "|---:|---:|---|---|---|---|"]
     sentences = []
     for f, thrust in enumerate(cube["thrust"].values):
@@ -361,8 +361,9 @@ def _finite_section(cube: xr.Dataset, tables: dict[str, pd.DataFrame], t: int) -
     lines.append("Not flown: grid points (speed x periapsis) where the strategy is feasible with impulsive burns but "
                  "its finite-burn sequence, aimed as well as it can be and split over periapsis passes where that "
                  "helps, cannot capture before leaving the sphere of influence, runs out of propellant, meets the "
-                 "surface, or passes below the body's lowest safe periapsis altitude. Max trim: the largest impulsive "
-                 "clean-up the aim left, over all strategies.")
+                 "surface, passes below the body's lowest safe periapsis altitude, or ends so far from the target "
+                 "that the trim would itself be a long burn. Max trim: the largest impulsive clean-up the aim left, "
+                 "over all strategies.")
     lines.append("")
     return lines
 

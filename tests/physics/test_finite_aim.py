@@ -435,7 +435,9 @@ def _assert_on_target_or_physical(name, strategy, v_inf, thrust, plan, safe_radi
         # real, not an artefact of the kernel's sampling (the replay's lowest radius includes
         # the periapsis of the orbit reached, which the trim starts from).
         again = _column(_fly(body, v_inf, thrust, plan, split_apoapsis=split, passes=point["passes"]))
-        assert OUTCOMES[int(again["outcome"])] == "ok"
+        # It flies through every burn: ok, or aim_not_met where its trim would be a long burn
+        # (that check comes after the safe-altitude one; the passes are kept as flown).
+        assert OUTCOMES[int(again["outcome"])] in ("ok", "aim_not_met")
         replay = _replay(body, v_inf, thrust, again)
         assert replay.lowest_radius < safe_radius - SAFE_TOLERANCE, (replay.lowest_radius - radius)
     elif outcome == "surface_impact":
