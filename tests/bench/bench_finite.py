@@ -1,7 +1,7 @@
 """Benchmark of the aimed finite-burn model: vectorized ``fly_capture`` against a per-point
 solve_ivp flight of the same aimed model, and the speedup of a second worker on a finite-burn sweep.
 
-Not collected by pytest. Run it directly (about 15-20 minutes at the defaults on a 2-core box):
+Not collected by pytest. Run it directly (measured 4 minutes at the defaults on a shared 2-core box):
 
     python tests/bench/bench_finite.py                      # 100,000 points, 400 through solve_ivp
     python tests/bench/bench_finite.py --points 2000 --reference-points 40 --grid-scale 0.05  # a quick look
