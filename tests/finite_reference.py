@@ -39,8 +39,10 @@ import math
 from typing import NamedTuple
 
 from scipy.integrate import solve_ivp
+from scipy.optimize import root, root_scalar
 
-__all__ = ["ReferenceCapture", "ReplayedFlight", "fly_capture_reference", "replay_flight"]
+__all__ = ["AimedCapture", "ReferenceCapture", "ReplayedFlight", "fly_capture_aimed_reference", "fly_capture_reference",
+           "replay_flight"]
 
 RTOL = 1e-11  # DOP853 relative tolerance (local error per step)
 ATOL = (1e-6, 1e-6, 1e-9, 1e-9)  # m, m, m/s, m/s: below rtol * |value| for every body used
@@ -371,3 +373,291 @@ def replay_flight(
     if periapsis:
         lowest = min(lowest, periapsis[-1])  # the craft stays on the final orbit
     return result("ok" if not periapsis or periapsis[-1] >= body_radius else "surface_impact")
+
+
+# --- aimed model, per point ----------------------------------------------------------------
+# The aimed model as the kernel's notes describe it (module notes of sweep.physics.finite_burn:
+# "Aim", "Model"), for captures of one pass per burn. Written from that description; nothing
+# here calls the kernel. Burns and the short coasts to ignition are integrated with DOP853
+# (solve_ivp); the controls are found with scipy.optimize root finders:
+#
+# * burn 1 by the approach periapsis radius it is flown with (secant from the impulsive one;
+#   the periapsis reached follows it about one for one); for a circular intended orbit also by
+#   a shift of the ignition along the track (``scipy.optimize.root``, MINPACK ``hybr``);
+# * every later burn by a turn of the tangential thrust at a constant rate through mid-burn,
+#   clipped at +-0.5 rad (secant from zero); circles also by the ignition shift (``hybr``);
+# * an aim stops as soon as the orbit reached misses its intended one by at most
+#   ``AIM_TOLERANCE`` in every coordinate aimed; otherwise the best flight tried is kept
+#   (flown beats failed, then the smaller miss). The miss of an ellipse is the apsis on the
+#   burn's side against the intended one; of a circle (eccentricity below ``ROUND``) the
+#   eccentricity vector times the semi-major axis, along and across the burn's end position.
+# * the rest is closed by an impulsive trim: the cheaper order of two apsis changes (vis-viva).
+#
+# Ignition of each burn: half its impulsive-equivalent time t_b = (m v_e / T)(1 - exp(-dv / v_e))
+# before the apsis (the approach periapsis for burn 1; later, the apsis of the orbit reached that
+# lies nearest the burn radius), moved later by shift / v (v: the approach periapsis speed for
+# burn 1, the vis-viva speed at the burn radius on the orbit reached for later burns); at once if
+# that moment has passed. dv is the vis-viva speed change of the impulsive plan at that radius.
+AIM_TOLERANCE = 50.0  # m
+AIM_FLIGHTS = 15  # flights per burn's aim at most (the first shot and the differences included)
+ROUND = 1e-3  # intended orbits below this eccentricity are aimed as circles
+SAFE_MARGIN = 100.0  # m: a coast passing this far below the body radius is below_safe_altitude
+
+
+class AimedCapture(NamedTuple):
+    """One aimed capture sequence (one pass per burn). SI units."""
+
+    delta_v: list[float]  # m/s per burn (NaN beyond a failure)
+    trim: float  # m/s, impulsive trim to the exact target orbit (NaN on failure)
+    total: float  # m/s, burns plus trim (NaN on failure)
+    approach_periapsis: float  # m, the approach periapsis burn 1 was flown with
+    misses: list[float]  # m, largest aimed miss left after each burn
+    flights: int  # burn integrations flown, all aims together
+    outcome: str
+
+
+class _Done(Exception):
+    """Raised inside a root finder's function once a flight is within the aim tolerance."""
+
+
+def _speed_on(gm, radius, periapsis, apoapsis):
+    return math.sqrt(max(gm * (2.0 / radius - 2.0 / (periapsis + apoapsis)), 0.0))
+
+
+def _trim_cost(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
+    """Cheaper order of two apsis changes from one coplanar orbit to another (vis-viva)."""
+    s = _speed_on
+    first = (abs(s(gm, periapsis, periapsis, target_apoapsis) - s(gm, periapsis, periapsis, apoapsis))
+             + abs(s(gm, target_apoapsis, target_periapsis, target_apoapsis)
+                   - s(gm, target_apoapsis, periapsis, target_apoapsis)))
+    second = (abs(s(gm, apoapsis, target_periapsis, apoapsis) - s(gm, apoapsis, periapsis, apoapsis))
+              + abs(s(gm, target_periapsis, target_periapsis, target_apoapsis)
+                    - s(gm, target_periapsis, target_periapsis, apoapsis)))
+    return min(first, second)
+
+
+def _turned_rhs(t, s, gm, acc0, mass, mass_flow, sign, rate, middle):
+    """Gravity plus thrust along sign * v-hat turned counter-clockwise by clip(rate (t - middle))."""
+    gx, gy = _gravity(s, gm)
+    acc = acc0 / (mass - mass_flow * t)
+    speed = max(math.hypot(s[2], s[3]), STOPPED)
+    ux, uy = sign * s[2] / speed, sign * s[3] / speed
+    if rate:
+        angle = min(max(rate * (t - middle), -MAX_TURN), MAX_TURN)
+        c, n = math.cos(angle), math.sin(angle)
+        ux, uy = ux * c - uy * n, ux * n + uy * c
+    return [s[2], s[3], gx + acc * ux, gy + acc * uy]
+
+
+def _coast_span(state, gm, span, rtol, atol):
+    if span == 0.0:
+        return list(state)
+    sol = solve_ivp(_coast_rhs, (0.0, span), list(state), method="DOP853", rtol=rtol, atol=atol, args=(gm,))
+    return list(sol.y[:, -1])
+
+
+def fly_capture_aimed_reference(
+    gm: float,
+    body_radius: float,
+    soi_radius: float,
+    v_inf: float,
+    burn_radii: list[float],
+    orbits: list[tuple[float, float]],
+    thrust: float,
+    exhaust_speed: float,
+    initial_mass: float,
+    rtol: float = RTOL,
+) -> AimedCapture:
+    """
+    Fly one aimed capture sequence, one pass per burn, tangential steering (see the notes
+    above). ``orbits``: the intended (periapsis, apoapsis) after each burn, the last the
+    target; burn 1 is made at its orbit's periapsis, which the aim starts from.
+    """
+    atol = ATOL
+    burns = len(burn_radii)
+    mass_flow = thrust / exhaust_speed
+    dry_limit = RESERVE * initial_mass
+    mass = initial_mass
+    delta_v, misses = [math.nan] * burns, []
+    flights = 0
+    lowest = math.inf
+    approach = float(orbits[0][0])
+
+    def failed(outcome):
+        return AimedCapture(delta_v, math.nan, math.nan, approach, misses, flights, outcome)
+
+    def burn(state, target, mass, rate, middle, t_b):
+        """Integrate one burn from ignition: (outcome, duration, final state)."""
+        nonlocal flights
+        flights += 1
+        sign = 1.0 if target >= _energy(state, gm) else -1.0
+        reached = _event(lambda _t, s, *_a: _energy(s, gm) - target, sign)
+        escaped = _event(lambda _t, s, *_a: math.hypot(s[0], s[1]) - soi_radius, 1.0)
+        impact = _event(lambda _t, s, *_a: math.hypot(s[0], s[1]) - body_radius, -1.0)
+        # Brought to rest by braking: the tangential direction is lost; counted as out of propellant.
+        at_rest = _event(lambda _t, s, *_a: math.hypot(s[2], s[3]) - 10.0 * STOPPED, -1.0)
+        t_max = (mass - dry_limit) / mass_flow
+        sol = solve_ivp(_turned_rhs, (0.0, t_max), list(state), method="DOP853", rtol=rtol, atol=atol,
+                        events=[reached, escaped, impact, at_rest],
+                        args=(gm, thrust, mass, mass_flow, sign, rate, middle),
+                        first_step=min(max(t_b, 1e-3) / 16.0, t_max))
+        for index, outcome in enumerate(("ok", "engine_cannot_capture", "surface_impact")):
+            if sol.t_events[index].size:
+                return outcome, float(sol.t_events[index][0]), list(sol.y_events[index][0])
+        return "propellant_exhausted", float(sol.t[-1]), list(sol.y[:, -1])
+
+    def miss_of(outcome, state, periapsis, apoapsis, at_periapsis, round_):
+        """(along, across) miss in metres, or None for a failure other than a surface impact."""
+        _, _, reached_periapsis, reached_apoapsis = _elements(state, gm)
+        if outcome == "surface_impact":
+            return (reached_periapsis - periapsis, 0.0)
+        if outcome != "ok":
+            return None
+        if not round_:
+            return (reached_periapsis - periapsis if at_periapsis else reached_apoapsis - apoapsis, 0.0)
+        x, y, vx, vy = state
+        r = math.hypot(x, y)
+        v2 = vx * vx + vy * vy
+        radial = x * vx + y * vy
+        ex = ((v2 - gm / r) * x - radial * vx) / gm
+        ey = ((v2 - gm / r) * y - radial * vy) / gm
+        axis = 0.5 * (periapsis + apoapsis)
+        target_e = (apoapsis - periapsis) / (apoapsis + periapsis)
+        along_e, across_e = (ex * x + ey * y) / r, (ey * x - ex * y) / r
+        return (-axis * (along_e - (1.0 if at_periapsis else -1.0) * target_e), axis * across_e)
+
+    def aim(fly, start, round_, first_step, identity_first, scale):
+        """
+        Root-find the controls ``x`` (list of 1 or 2) so that ``fly(x) -> (miss, record)`` misses
+        by at most AIM_TOLERANCE. ``scale``: the size of a first step in each control (the
+        secant's first step is clipped to it; ``hybr``'s first trust region spans it). Returns
+        the best record and its largest miss.
+        """
+        best = {"key": (2, math.inf), "record": None, "miss": math.inf}
+        seen = {}
+
+        def evaluate(x):
+            x = tuple(float(v) for v in x)
+            if x in seen:
+                return seen[x]
+            if len(seen) >= AIM_FLIGHTS:
+                raise _Done
+            miss, record = fly(list(x))
+            size = math.inf if miss is None else max(abs(miss[0]), abs(miss[1]) if round_ else 0.0)
+            key = (0 if record[0] == "ok" else 1, size)
+            if key < best["key"]:
+                best.update(key=key, record=record, miss=size)
+            if record[0] == "ok" and size <= AIM_TOLERANCE:
+                raise _Done
+            if miss is None or not all(map(math.isfinite, miss)):
+                raise _Done  # a failed flight ends the aim: the best so far is kept
+            seen[x] = miss
+            return miss
+
+        try:
+            if not round_:
+                f0 = evaluate(start)[0]
+                x1 = start[0] + (min(max(-f0, -scale[0]), scale[0]) if identity_first else first_step[0])
+                root_scalar(lambda v: evaluate([v])[0], method="secant", x0=start[0], x1=x1,
+                            maxiter=AIM_FLIGHTS - 1, xtol=1e-12, rtol=1e-15)
+            else:
+                def jacobian(x):
+                    base = evaluate(x)
+                    columns = []
+                    for column in (0, 1):
+                        if column == 0 and identity_first:
+                            columns.append((1.0, 0.0))
+                            continue
+                        shifted = list(x)
+                        shifted[column] += first_step[column]
+                        moved = evaluate(shifted)
+                        columns.append(((moved[0] - base[0]) / first_step[column],
+                                        (moved[1] - base[1]) / first_step[column]))
+                    return [[columns[0][0], columns[1][0]], [columns[0][1], columns[1][1]]]
+
+                # Solved in controls relative to the start, so that the first trust region is
+                # factor * |diag^-1| = scale in each control.
+                root(lambda u: evaluate([start[0] + u[0], start[1] + u[1]]), [0.0, 0.0], method="hybr",
+                     jac=lambda u: jacobian([start[0] + u[0], start[1] + u[1]]),
+                     options={"maxfev": AIM_FLIGHTS, "xtol": 1e-12, "factor": 1.0,
+                              "diag": [1.0 / scale[0], 1.0 / scale[1]]})
+        except (_Done, ZeroDivisionError, OverflowError, ValueError):
+            pass
+        return best["record"], best["miss"]
+
+    # Burn 1: from the approach periapsis, back along the hyperbola to ignition.
+    clock = 0.0
+    state = None
+    for k in range(burns):
+        periapsis, apoapsis = orbits[k]
+        radius = burn_radii[k]
+        target = -gm / (periapsis + apoapsis)
+        round_ = (apoapsis - periapsis) / (apoapsis + periapsis) < ROUND
+        at_periapsis = abs(radius - periapsis) <= abs(radius - apoapsis)
+        if k == 0:
+            before = math.sqrt(v_inf * v_inf + 2.0 * gm / periapsis)
+        else:
+            before = _speed_on(gm, radius, *orbits[k - 1])
+        impulse = abs(before - _speed_on(gm, radius, periapsis, apoapsis))
+        t_b = mass * exhaust_speed / thrust * -math.expm1(-impulse / exhaust_speed)
+        if k == 0:
+            def fly(x, t_b=t_b, mass=mass, periapsis=periapsis, apoapsis=apoapsis, at_periapsis=at_periapsis,
+                    round_=round_):
+                rp = max(x[0], body_radius + 1.0)
+                speed = math.sqrt(v_inf * v_inf + 2.0 * gm / rp)
+                lead = 0.5 * t_b - (x[1] / speed if round_ else 0.0)
+                start = _coast_span([rp, 0.0, 0.0, speed], gm, -lead, rtol, atol)
+                outcome, duration, end = burn(start, target, mass, 0.0, 0.0, t_b)
+                low = rp if lead < 0.0 else math.inf  # ignited after the approach periapsis: passed it
+                record = (outcome, duration, end, -lead + duration, rp, low)
+                return miss_of(outcome, end, periapsis, apoapsis, at_periapsis, round_), record
+
+            arc = math.sqrt(v_inf * v_inf + 2.0 * gm / periapsis) * t_b
+            record, miss = aim(fly, [periapsis, 0.0], round_, [1.0, 0.05 * arc + 1.0], True,
+                               [periapsis - body_radius + 1e4, arc + 1e3])
+            approach = record[4]
+        else:
+            a, e, _, _ = _elements(state, gm)
+            speed = max(_speed_on(gm, radius, *_elements(state, gm)[2:]), 1.0)
+            apsis_state, to_apsis = None, 0.0
+            if e >= CIRCULAR and abs(target - _energy(state, gm)) > 1e-12 * abs(target):
+                at_apoapsis = abs(a * (1.0 + e) - radius) < abs(a * (1.0 - e) - radius)
+                period = 2.0 * math.pi * math.sqrt(a**3 / gm)
+                apsis = _event(lambda _t, s, _gm: s[0] * s[2] + s[1] * s[3], -1.0 if at_apoapsis else 1.0)
+                sol = solve_ivp(_coast_rhs, (0.0, 1.01 * period), list(state), method="DOP853", rtol=rtol,
+                                atol=atol, events=[apsis, _periapsis_event], args=(gm,))
+                to_apsis, apsis_state = float(sol.t_events[0][0]), list(sol.y_events[0][0])
+                passed = [math.hypot(y[0], y[1]) for t, y in zip(sol.t_events[1], sol.y_events[1], strict=True)
+                          if t < to_apsis]
+                coast_low = min(passed, default=math.inf)
+
+            def fly(x, t_b=t_b, mass=mass, periapsis=periapsis, apoapsis=apoapsis, at_periapsis=at_periapsis,
+                    round_=round_, state=state, speed=speed, apsis_state=apsis_state, to_apsis=to_apsis):
+                lead = 0.5 * t_b - (x[1] / speed if round_ else 0.0)
+                if apsis_state is not None and to_apsis > lead:
+                    start, coast = _coast_span(apsis_state, gm, -lead, rtol, atol), to_apsis - lead
+                else:
+                    start, coast = list(state), 0.0
+                rate = x[0] / max(0.5 * t_b, 1e-9)
+                outcome, duration, end = burn(start, target, mass, rate, 0.5 * t_b, t_b)
+                low = coast_low if apsis_state is not None and coast > 0.0 else math.inf
+                record = (outcome, duration, end, clock + coast + duration, None, low)
+                return miss_of(outcome, end, periapsis, apoapsis, at_periapsis, round_), record
+
+            arc = speed * t_b
+            record, miss = aim(fly, [0.0, 0.0], round_, [0.01, 0.05 * arc + 1.0], False, [MAX_TURN, arc + 1e3])
+        outcome, duration, state, clock, _, low = record
+        lowest = min(lowest, low)
+        misses.append(miss)
+        if outcome != "ok":
+            return failed(outcome)
+        after = mass - mass_flow * duration
+        delta_v[k] = exhaust_speed * math.log(mass / after)
+        mass = after
+    _, _, reached_periapsis, reached_apoapsis = _elements(state, gm)
+    if reached_periapsis < body_radius:
+        return failed("surface_impact")
+    if lowest < body_radius - SAFE_MARGIN:
+        return failed("below_safe_altitude")
+    trim = _trim_cost(gm, reached_periapsis, reached_apoapsis, *orbits[-1])
+    return AimedCapture(delta_v, trim, sum(delta_v) + trim, approach, misses, flights, "ok")

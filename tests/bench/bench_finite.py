@@ -1,24 +1,29 @@
-"""Benchmark of the finite-burn model: vectorized RK4 against scipy's solve_ivp per point,
-and the speedup of a second worker process on a finite-burn sweep.
+"""Benchmark of the aimed finite-burn model: vectorized ``fly_capture`` against a per-point
+solve_ivp flight of the same aimed model, and the speedup of a second worker on a finite-burn sweep.
 
-Not collected by pytest. Run it directly (the full reference run takes tens of minutes):
+Not collected by pytest. Run it directly (measured 4 minutes at the defaults on a shared 2-core box):
 
-    python tests/bench/bench_finite.py                          # 100,000 points, as the issue asks
-    python tests/bench/bench_finite.py --points 2000 --grid-scale 0.5   # a quick look
+    python tests/bench/bench_finite.py                      # 100,000 points, 400 through solve_ivp
+    python tests/bench/bench_finite.py --points 2000 --reference-points 40 --grid-scale 0.05  # a quick look
 
 In one run it
 
 * draws a seeded sample of grid points (Mars, Venus, the Moon, Jupiter; arrival speed, target
   and periapsis altitude, thrust-to-weight 0.1 to 3) and flies all three strategies for every
-  point, with ``sweep.physics.finite_burn.fly_capture`` (batches of 32,768 points, as the
-  evaluation uses) and with the independent per-point solve_ivp reference in
-  ``tests/finite_reference.py`` at a tolerance that still agrees to 1 m/s;
-* prints the time per point of each, the ratio, and the agreement (largest delta-v difference
-  over points both call flown, and the count of differing outcomes);
+  point with ``sweep.physics.finite_burn.fly_capture`` (aimed, one pass per burn: ``passes=1``,
+  batches of 16,384 points, the engine's chunk size), and for the first ``--reference-points``
+  points with the independent per-point aimed reference
+  ``tests/finite_reference.fly_capture_aimed_reference`` (solve_ivp DOP853 flights, controls
+  found with scipy.optimize root finders to the same 50 m aim tolerance, vis-viva trim);
+* prints the time per point of each, the ratio, and the agreement of the total delta-v (burns
+  plus trim) over sequences both call flown: the largest difference, the 99th percentile, how
+  many exceed the target, and the count of differing outcomes; and the same agreement over the
+  sequences both aims brought on target (trim at most 1 m/s on each side), for information;
 * times ``evaluate`` on a finite-burn sweep with 1 and with 2 worker processes.
 
-Targets from the issue: at least 300x the per-point solve_ivp time; at least 1.7x from the
-second worker. Exit status 0 only if both are met and the agreement is within 1 m/s.
+Targets from the issue: at least 500x the per-point solve_ivp time of the same aimed model at an
+agreement within 0.05 m/s (largest and 99th percentile difference of the total); at least 1.7x
+from the second worker. Exit status 0 only if all are met; the unmet ones are named.
 """
 
 from __future__ import annotations
@@ -27,6 +32,7 @@ import argparse
 import os
 import sys
 import time
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -50,11 +56,14 @@ from sweep.physics.rocket import STANDARD_GRAVITY  # noqa: E402
 BODIES = ("mars", "venus", "moon", "jupiter")
 RATIOS = (0.1, 0.3, 1.0, 3.0)
 ISP, MASS = 320.0, 1000.0
-BATCH = 1 << 15
-RATIO_TARGET, WORKER_TARGET, AGREEMENT = 300.0, 1.7, 1.0  # x, x, m/s
-# The reference's tolerance for the timed run: loose enough to be a fair, fast baseline, tight
-# enough to agree within 1 m/s (the tests use 1e-11 to check the kernel far more closely).
-REFERENCE_RTOL = 1e-8
+BATCH = 1 << 14  # points per fly_capture call: the engine's finite-burn chunk (finite_chunks)
+RATIO_TARGET, WORKER_TARGET, AGREEMENT = 500.0, 1.7, 0.05  # x, x, m/s
+ON_TARGET_TRIM = 1.0  # m/s: a sequence with a larger trim counts as not brought on target by its aim
+# The reference's DOP853 tolerance for the timed run: loose enough to be a fair, fast baseline,
+# tight enough for its own delta-v to agree within 0.05 m/s. Measured on a Jupiter three_burn
+# point (T/W 1, a 16 km/s final burn): rtol 1e-8 is 0.04 m/s off the rtol 1e-10 flight, 1e-9
+# 0.003 m/s; the 50 m aim tolerance on its 2.6e6 km apoapsis also needs 1e-9 (1e-8: ~75 m noise).
+REFERENCE_RTOL = 1e-9
 
 SWEEP = """
 name = "bench-finite"
@@ -104,59 +113,71 @@ def plans(p: dict[str, np.ndarray], i=slice(None)):
 
 
 def run_vectorized(p):
+    """Total delta-v (burns plus trim), trim and outcome of every point and strategy, aimed, one pass per burn."""
     n = p["gm"].size
     out = {}
     for start in range(0, n, BATCH):
         i = slice(start, min(start + BATCH, n))
         for name, first, radii, orbits, burns in plans(p, i):
-            # aim=False, one pass per burn: the centred model the solve_ivp reference flies (the
-            # aimed kernel does several flights per point; the lead may revise this ratio).
             result = fly_capture(p["gm"][i], p["radius"][i], p["soi"][i], p["v_inf"][i], first, radii, orbits,
-                                 list(burns), p["thrust"][i], ISP * STANDARD_GRAVITY, MASS, aim=False, passes=1)
+                                 list(burns), p["thrust"][i], ISP * STANDARD_GRAVITY, MASS, passes=1)
             out.setdefault(name, []).append(result)
-    return {name: (np.concatenate([r.delta_v for r in rs], axis=1), np.concatenate([r.outcome for r in rs]))
+    return {name: (np.concatenate([r.delta_v.sum(axis=0) + r.trim_delta_v for r in rs]),
+                   np.concatenate([r.trim_delta_v for r in rs]), np.concatenate([r.outcome for r in rs]))
             for name, rs in out.items()}
 
 
 def run_reference(p, count):
-    out = {name: (np.full((len(radii), count), np.nan), np.zeros(count, dtype=np.int8))
-           for name, _, radii, _, _ in plans(p, slice(0, 1))}
+    """The same, per point, for the first ``count`` points: the solve_ivp aimed reference."""
+    out = {name: (np.full(count, np.nan), np.full(count, np.nan), np.zeros(count, dtype=np.int8))
+           for name, _, _, _, _ in plans(p, slice(0, 1))}
+    flights = 0
     for k in range(count):
-        for name, first, radii, orbits, burns in plans(p, k):
-            gm = float(p["gm"][k])
-            result = reference.fly_capture_reference(
-                gm, float(p["radius"][k]), float(p["soi"][k]), float(p["v_inf"][k]), float(first),
-                [float(r) for r in radii], [-gm / float(a + b) for a, b in orbits], [float(b) for b in burns],
-                float(p["thrust"][k]), ISP * STANDARD_GRAVITY, MASS,
+        for name, _, radii, orbits, _ in plans(p, k):
+            result = reference.fly_capture_aimed_reference(
+                float(p["gm"][k]), float(p["radius"][k]), float(p["soi"][k]), float(p["v_inf"][k]),
+                [float(r) for r in radii], [(float(a), float(b)) for a, b in orbits], float(p["thrust"][k]),
+                ISP * STANDARD_GRAVITY, MASS, rtol=REFERENCE_RTOL,
             )
-            out[name][0][:, k] = result.delta_v
-            out[name][1][k] = OUTCOMES.index(result.outcome)
-    return out
+            out[name][0][k], out[name][1][k] = result.total, result.trim
+            out[name][2][k] = OUTCOMES.index(result.outcome)
+            flights += result.flights
+    return out, flights
 
 
-def agreement(vectorized, ref, count):
-    worst, mismatched, compared = 0.0, 0, 0
-    for name, (dv_ref, outcome_ref) in ref.items():
-        dv, outcome = vectorized[name][0][:, :count], vectorized[name][1][:count]
+def agreement(vectorized, ref, count, on_target_only=False):
+    """|total difference| over sequences both flew (optionally: both on target), outcome differences."""
+    differences, mismatched = [], 0
+    for name, (total_ref, trim_ref, outcome_ref) in ref.items():
+        total, trim, outcome = (a[:count] for a in vectorized[name])
         both = (outcome == 0) & (outcome_ref == 0)
-        compared += int(both.sum())
-        if both.any():
-            worst = max(worst, float(np.nanmax(np.abs(dv[:, both] - dv_ref[:, both]))))
+        if on_target_only:
+            both &= (trim <= ON_TARGET_TRIM) & (trim_ref <= ON_TARGET_TRIM)
+        differences.append(np.abs(total[both] - total_ref[both]))
         mismatched += int((outcome != outcome_ref).sum())
-    return worst, mismatched, compared
+    return np.concatenate(differences), mismatched
+
+
+def describe(differences):
+    if differences.size == 0:
+        return "no sequences", np.inf, np.inf
+    worst, p99 = float(differences.max()), float(np.percentile(differences, 99))
+    over = int((differences > AGREEMENT).sum())
+    return (f"max {worst:.4f} m/s, 99th percentile {p99:.4f} m/s, median {np.median(differences):.4f} m/s, "
+            f"{over} above {AGREEMENT} m/s, over {differences.size:,} sequences"), worst, p99
 
 
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--points", type=int, default=100_000, help="sample size for both implementations")
-    parser.add_argument("--reference-points", type=int, default=None,
-                        help="points through solve_ivp (default: all of the sample)")
-    parser.add_argument("--grid-scale", type=float, default=1.0, help="scale of the worker-speedup sweep")
+    parser.add_argument("--points", type=int, default=100_000, help="sample size flown by the vectorized kernel")
+    parser.add_argument("--reference-points", type=int, default=400,
+                        help="points (the first of the sample) flown by the per-point solve_ivp reference")
+    parser.add_argument("--grid-scale", type=float, default=0.5, help="scale of the worker-speedup sweep")
     parser.add_argument("--seed", type=int, default=20261202)
     args = parser.parse_args(argv)
-    count = min(args.reference_points or args.points, args.points)
-    print(f"capsweep finite-burn benchmark: python {sys.version.split()[0]}, numpy {np.__version__}, "
-          f"{os.cpu_count()} cpus")
+    count = min(args.reference_points, args.points)
+    print(f"capsweep finite-burn benchmark (aimed, passes=1): python {sys.version.split()[0]}, "
+          f"numpy {np.__version__}, {os.cpu_count()} cpus")
     points = sample(args.points, args.seed)
 
     started = time.perf_counter()
@@ -166,19 +187,30 @@ def main(argv=None) -> int:
     print(f"vectorized fly_capture: {args.points:,} points x 3 strategies in {vector_time:.2f} s "
           f"= {per_point_vector * 1e6:.1f} us/point")
 
-    reference.RTOL = REFERENCE_RTOL
     started = time.perf_counter()
-    ref = run_reference(points, count)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # root_scalar's secant warns when it stalls
+        ref, flights = run_reference(points, count)
     ref_time = time.perf_counter() - started
     per_point_ref = ref_time / count
-    print(f"solve_ivp reference (DOP853, rtol {REFERENCE_RTOL:g}): {count:,} points x 3 strategies in "
-          f"{ref_time:.1f} s = {per_point_ref * 1e3:.2f} ms/point")
-    worst, mismatched, compared = agreement(vectorized, ref, count)
+    print(f"solve_ivp aimed reference (DOP853, rtol {REFERENCE_RTOL:g}): {count:,} points x 3 strategies in "
+          f"{ref_time:.1f} s = {per_point_ref * 1e3:.2f} ms/point ({flights / count:.1f} burns flown per point)")
     ratio = per_point_ref / per_point_vector
-    print(f"agreement: max |delta-v difference| {worst:.3f} m/s over {compared:,} flown sequences; "
+    differences, mismatched = agreement(vectorized, ref, count)
+    text, worst, p99 = describe(differences)
+    print(f"agreement of the total delta-v incl. trim, sequences both flew: {text}; "
           f"{mismatched} outcome differences out of {3 * count:,}")
+    on_target, _ = agreement(vectorized, ref, count, on_target_only=True)
+    print(f"  (for information) both on target, trim <= {ON_TARGET_TRIM:g} m/s each: {describe(on_target)[0]}")
+    failures = []
+    ok_ratio, ok_agreement = ratio >= RATIO_TARGET, worst <= AGREEMENT and p99 <= AGREEMENT
     print(f"ratio solve_ivp / vectorized per point: {ratio:.0f}x  target >= {RATIO_TARGET:.0f}x: "
-          f"{'PASS' if ratio >= RATIO_TARGET else 'FAIL'}")
+          f"{'PASS' if ok_ratio else 'FAIL'}")
+    print(f"agreement target max and 99th percentile <= {AGREEMENT} m/s: {'PASS' if ok_agreement else 'FAIL'}")
+    if not ok_ratio:
+        failures.append(f"ratio {ratio:.0f}x < {RATIO_TARGET:.0f}x")
+    if not ok_agreement:
+        failures.append(f"agreement max {worst:.4f} / p99 {p99:.4f} m/s > {AGREEMENT} m/s")
 
     speeds = max(4, int(round(400 * args.grid_scale)))
     config = parse_config(SWEEP.format(speeds=speeds), "bench-finite.toml")
@@ -193,8 +225,10 @@ def main(argv=None) -> int:
     print(f"finite-burn sweep of {finite_points:,} points (x 3 strategies), best of 2: 1 worker {timings[1]:.2f} s, "
           f"2 workers {timings[2]:.2f} s, speedup {speedup:.2f}x  target >= {WORKER_TARGET}x: "
           f"{'PASS' if speedup >= WORKER_TARGET else 'FAIL'}")
-    ok = ratio >= RATIO_TARGET and speedup >= WORKER_TARGET and worst <= AGREEMENT
-    return 0 if ok else 1
+    if speedup < WORKER_TARGET:
+        failures.append(f"worker speedup {speedup:.2f}x < {WORKER_TARGET}x")
+    print("targets not met: " + "; ".join(failures) if failures else "all targets met")
+    return 1 if failures else 0
 
 
 if __name__ == "__main__":
