@@ -660,4 +660,13 @@ def fly_capture_aimed_reference(
     if lowest < body_radius - SAFE_MARGIN:
         return failed("below_safe_altitude")
     trim = _trim_cost(gm, reached_periapsis, reached_apoapsis, *orbits[-1])
+    # The trim is costed as an impulse only if it is a short burn itself: at most 10 degrees of the
+    # target orbit at its periapsis speed, at this thrust (the model's rule); else the aim did not meet it.
+    target_periapsis, target_apoapsis = orbits[-1]
+    trim_time = mass * exhaust_speed / thrust * -math.expm1(-trim / exhaust_speed)
+    periapsis_speed = math.sqrt(gm * (2.0 / target_periapsis - 2.0 / (target_periapsis + target_apoapsis)))
+    if periapsis_speed / target_periapsis * trim_time > math.radians(10.0):
+        return failed("aim_not_met")
+    if mass * math.exp(-trim / exhaust_speed) < RESERVE * initial_mass:  # the trim comes from the same tanks
+        return failed("propellant_exhausted")
     return AimedCapture(delta_v, trim, sum(delta_v) + trim, approach, misses, flights, "ok")

@@ -119,7 +119,7 @@ def test_a_fourth_strategy_in_the_finite_and_plane_change_sections():
                                   finite.finite_toy_crossover_v_inf.transpose("body", "target_altitude", "thrust",
                                                                               "periapsis_altitude").values.ravel())
     text = render_summary(finite, tables)
-    assert "points won: direct / two_burn / three_burn / toy |" in text
+    assert "points won of those any strategy flies: direct / two_burn / three_burn / toy |" in text
     assert "`two_burn` with periapsis 250 km" in text  # the short answer still follows the low dive
 
     plane = _with_toy(run(parse_config(PLANE, "plane.toml"), workers=1))

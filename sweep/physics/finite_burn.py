@@ -853,6 +853,10 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
         trim_time = impulsive_burn_time(trim, flight["mass"], p.thrust, p.exhaust_speed)
         trim_arc = _speed_on(p.gm, target_periapsis, target_periapsis, target_apoapsis) / target_periapsis * trim_time
     outcome[(outcome == 0) & (trim_arc > SPLIT_ARC)] = OUTCOMES.index("aim_not_met")
+    # ... and it is paid from the same tanks: past the reserve, the propellant is exhausted.
+    with np.errstate(invalid="ignore"):
+        left = flight["mass"] * np.exp(-trim / p.exhaust_speed)
+    outcome[(outcome == 0) & (left < p.reserve)] = OUTCOMES.index("propellant_exhausted")
     failed = outcome != 0  # its passes stay as flown up to the failure: the engine reports none of them
     out.update(time=np.where(failed, np.nan, flight["clock"]), outcome=outcome, trim=np.where(failed, np.nan, trim),
                lowest=lowest, passes=plan.counts.astype(np.int8), failed_at=failed_at)
