@@ -607,7 +607,7 @@ def fly_capture_aimed_reference(
                 speed = math.sqrt(v_inf * v_inf + 2.0 * gm / rp)
                 lead = 0.5 * t_b - (x[1] / speed if round_ else 0.0)
                 start = _coast_span([rp, 0.0, 0.0, speed], gm, -lead, rtol, atol)
-                outcome, duration, end = burn(start, target, mass, 0.0, 0.0, t_b)
+                outcome, duration, end = burn(start, target, mass, 0.0, 0.0, t_b)  # noqa: B023 (called within this iteration only)
                 low = rp if lead < 0.0 else math.inf  # ignited after the approach periapsis: passed it
                 record = (outcome, duration, end, -lead + duration, rp, low)
                 return miss_of(outcome, end, periapsis, apoapsis, at_periapsis, round_), record
@@ -639,9 +639,9 @@ def fly_capture_aimed_reference(
                 else:
                     start, coast = list(state), 0.0
                 rate = x[0] / max(0.5 * t_b, 1e-9)
-                outcome, duration, end = burn(start, target, mass, rate, 0.5 * t_b, t_b)
-                low = coast_low if apsis_state is not None and coast > 0.0 else math.inf
-                record = (outcome, duration, end, clock + coast + duration, None, low)
+                outcome, duration, end = burn(start, target, mass, rate, 0.5 * t_b, t_b)  # noqa: B023 (called within this iteration only)
+                low = coast_low if apsis_state is not None and coast > 0.0 else math.inf  # noqa: B023 (called within this iteration only)
+                record = (outcome, duration, end, clock + coast + duration, None, low)  # noqa: B023 (called within this iteration only)
                 return miss_of(outcome, end, periapsis, apoapsis, at_periapsis, round_), record
 
             arc = speed * t_b
