@@ -79,14 +79,7 @@ def _coast_rhs(_t, s, gm):
 
 def _burn_rhs(t, s, gm, thrust, mass, mass_flow, sign, direction):
     """Gravity plus thrust; ``direction`` None = along sign * v-hat, else a fixed unit vector."""
-    gx, gy = _gravity(s, gm)
-    acc = thrust / (mass - mass_flow * t)
-    if direction is None:
-        speed = math.hypot(s[2], s[3])
-        ux, uy = sign * s[2] / speed, sign * s[3] / speed
-    else:
-        ux, uy = direction
-    return [s[2], s[3], gx + acc * ux, gy + acc * uy]
+    return _pitched_rhs(t, s, gm, thrust, mass, mass_flow, sign, 0.0, 0.0, 0.0, direction)  # no turn
 
 
 def _energy(s, gm):
