@@ -148,8 +148,15 @@ class FiniteBurn(_Model):
 
     steering: Literal["tangential", "inertial"] = "tangential"
     # Periapsis passes a capture burn is split over: a count, or "auto" (split only where needed).
-    passes: Literal["auto"] | Annotated[int, Field(ge=1, le=64)] = "auto"
+    passes: int | str = "auto"
     max_passes: Annotated[int, Field(ge=1, le=64)] = 8  # the most passes "auto" gives one burn
+
+    @field_validator("passes", mode="before")
+    @classmethod
+    def _passes(cls, value):
+        if value == "auto" or (isinstance(value, int) and not isinstance(value, bool) and 1 <= value <= 64):
+            return value
+        raise ValueError('should be "auto" or a whole number of passes from 1 to 64')
 
 
 class BodyFields(_Model):

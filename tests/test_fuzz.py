@@ -28,7 +28,7 @@ NAMES_A_KEY_OR_LINE = re.compile(
     r"^fuzz\.toml: (not valid TOML: .*\bline \d+"
     r"|unknown key '[^']*'"
     r"|missing required key '[^']+'"
-    r'|(?:[\w-]+|"[^"]*")(?:\.(?:[\w-]+|"[^"]*"))*: '
+    r'|(?:[\w-]+|"(?:[^"\\]|\\.)*")(?:\.(?:[\w-]+|"(?:[^"\\]|\\.)*"))*: '  # a quoted key may hold \" escapes
     r"|\[bodies\.[^\]]+\] \w+: "
     r"|body '[^']+' )"
 )
