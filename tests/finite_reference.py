@@ -42,7 +42,7 @@ from scipy.integrate import solve_ivp
 from scipy.optimize import root, root_scalar
 
 __all__ = ["AimedCapture", "ReferenceCapture", "ReplayedFlight", "fly_capture_aimed_reference", "fly_capture_reference",
-           "replay_flight"]
+           "replay_flight", "trim_cost"]
 
 RTOL = 1e-11  # DOP853 relative tolerance (local error per step)
 ATOL = (1e-6, 1e-6, 1e-9, 1e-9)  # m, m, m/s, m/s: below rtol * |value| for every body used
@@ -417,8 +417,9 @@ def _speed_on(gm, radius, periapsis, apoapsis):
     return math.sqrt(max(gm * (2.0 / radius - 2.0 / (periapsis + apoapsis)), 0.0))
 
 
-def _trim_cost(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
-    """Cheaper order of two apsis changes from one coplanar orbit to another (vis-viva)."""
+def trim_cost(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
+    """Cheaper order of two apsis-to-apsis impulses from one coplanar orbit to another
+    (Hohmann-type, Curtis 2014 Sec. 6.2-6.3; written here from vis-viva)."""
     s = _speed_on
     first = (abs(s(gm, periapsis, periapsis, target_apoapsis) - s(gm, periapsis, periapsis, apoapsis))
              + abs(s(gm, target_apoapsis, target_periapsis, target_apoapsis)
@@ -652,7 +653,7 @@ def fly_capture_aimed_reference(
         return failed("surface_impact")
     if lowest < body_radius - SAFE_MARGIN:
         return failed("below_safe_altitude")
-    trim = _trim_cost(gm, reached_periapsis, reached_apoapsis, *orbits[-1])
+    trim = trim_cost(gm, reached_periapsis, reached_apoapsis, *orbits[-1])
     # The trim is costed as an impulse only if it is a short burn itself: at most 10 degrees of the
     # target orbit at its periapsis speed, at this thrust (the model's rule); else the aim did not meet it.
     target_periapsis, target_apoapsis = orbits[-1]

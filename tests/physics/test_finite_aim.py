@@ -28,7 +28,7 @@ import pytest
 
 from sweep.physics.capture import best_intermediate_apoapsis, direct_capture, three_burn_capture, two_burn_capture
 from sweep.physics.finite_burn import AIM_TOLERANCE, OUTCOMES, SAFE_TOLERANCE, fly_capture
-from tests.finite_reference import fly_capture_reference, replay_flight
+from tests.finite_reference import fly_capture_reference, replay_flight, trim_cost
 
 G0 = 9.80665  # m/s^2, exact by definition (3rd CGPM, 1901)
 ISP = 321.0  # s, a storable bipropellant engine (catalog-like test input)
@@ -126,23 +126,11 @@ def _speed(gm, r, periapsis, apoapsis):
     return math.sqrt(gm * (2.0 / r - 2.0 / (periapsis + apoapsis)))
 
 
-def _two_impulse_trim(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
-    """Cheaper order of two apsis-to-apsis impulses from one coplanar orbit to another
-    (Hohmann-type, Curtis 2014 Sec. 6.2-6.3; written here from vis-viva)."""
-    first = (abs(_speed(gm, periapsis, periapsis, target_apoapsis) - _speed(gm, periapsis, periapsis, apoapsis))
-             + abs(_speed(gm, target_apoapsis, target_periapsis, target_apoapsis)
-                   - _speed(gm, target_apoapsis, periapsis, target_apoapsis)))
-    second = (abs(_speed(gm, apoapsis, target_periapsis, apoapsis) - _speed(gm, apoapsis, periapsis, apoapsis))
-              + abs(_speed(gm, target_periapsis, target_periapsis, target_apoapsis)
-                    - _speed(gm, target_periapsis, target_periapsis, apoapsis)))
-    return min(first, second)
-
-
 def _small_trim(gm, target_radius):
     """The trim of a circle missed by ON_TARGET at both apsides (a burn ending on the target
     energy but not horizontal keeps the semi-major axis: r_t -/+ miss): below this, the kernel
     claims to end within 0.1 km of its target."""
-    return _two_impulse_trim(gm, target_radius - ON_TARGET, target_radius + ON_TARGET, target_radius, target_radius)
+    return trim_cost(gm, target_radius - ON_TARGET, target_radius + ON_TARGET, target_radius, target_radius)
 
 
 # =======================================================================================
@@ -286,9 +274,9 @@ def test_trim_is_the_two_impulse_cost_of_the_miss():
         gm = BODIES[point[0]][0]
         target = point[4][2][-1]
         reached = float(kernel["periapsis_radius"][-1]), float(kernel["apoapsis_radius"][-1])
-        own = _two_impulse_trim(gm, *reached, *target)
+        own = trim_cost(gm, *reached, *target)
         assert float(kernel["trim_delta_v"]) == pytest.approx(own, abs=1e-9), _label(point)
-        replayed = _two_impulse_trim(gm, replay.periapsis_radius[-1], replay.apoapsis_radius[-1], *target)
+        replayed = trim_cost(gm, replay.periapsis_radius[-1], replay.apoapsis_radius[-1], *target)
         allowance = 1e-5 * _speed(gm, target[0], *target)
         assert float(kernel["trim_delta_v"]) == pytest.approx(replayed, abs=allowance), _label(point)
 
@@ -381,7 +369,7 @@ def test_gravity_loss_falls_as_inverse_square_of_thrust(strategy):
     mean_motion = math.sqrt(gm / burn_radius**3)
     burn_time = MASS * VE / _thrust(ratios) * -math.expm1(-plan[3][0] / VE)
     miss = math.sqrt(2.0) * AIM_TOLERANCE
-    noise = _two_impulse_trim(gm, r_t - miss, r_t + miss, r_t, r_t)
+    noise = trim_cost(gm, r_t - miss, r_t + miss, r_t, r_t)
     for i in range(2):
         tolerance = 4.0 * (mean_motion * burn_time[i]) ** 2 + 5.0 * noise / loss[i + 1]
         assert tolerance < 0.5  # the check still tells 4 from 2 or 8
