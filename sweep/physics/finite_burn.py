@@ -92,6 +92,7 @@ __all__ = [
     "MAX_PASSES",
     "OUTCOMES",
     "SAFE_TOLERANCE",
+    "TRIM_SPLIT",
     "FiniteCapture",
     "fly_capture",
     "impulsive_burn_time",
