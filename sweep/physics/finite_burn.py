@@ -80,6 +80,7 @@ References
 
 from __future__ import annotations
 
+import os
 from typing import NamedTuple
 
 import numpy as np
@@ -415,6 +416,20 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
     compact working arrays, trimmed only on steps where some finish.
     """
     x, y, vx, vy = (np.array(s, dtype=float) for s in state)
+    compiled = _compiled()
+    if compiled is not None:
+        n = x.size
+        fixed, turning = p.ux is not None, p.rate is not None
+        duration, outcome, lowest = compiled.burn(
+            x, y, vx, vy, *(np.ascontiguousarray(np.broadcast_to(np.asarray(v, dtype=float), (n,))) for v in (
+                p.gm, p.thrust, p.mass, p.mass_flow, p.sign, p.ux if fixed else 0.0, p.uy if fixed else 0.0,
+                p.rate if turning else 0.0, p.middle if turning else 0.0)),
+            fixed, turning, *(np.ascontiguousarray(np.broadcast_to(np.asarray(v, dtype=float), (n,))) for v in (
+                target_energy, expected_time, limits["soi"], limits["body_radius"], limits["max_time"])),
+            float(refinement), _COMPILED_CONSTANTS,
+            np.array([OUTCOMES.index(k) for k in ("engine_cannot_capture", "propellant_exhausted", "surface_impact")],
+                     dtype=np.int8))
+        return (x, y, vx, vy), duration, outcome, lowest
     duration = np.zeros(x.size)
     outcome = np.zeros(x.size, dtype=np.int8)
     lowest = np.sqrt(x * x + y * y)
@@ -476,6 +491,24 @@ def _burn(state, p: _Engine, target_energy, expected_time, limits, refinement=1.
         duration[which] = tau + step
         lowest[which] = np.minimum(low, np.hypot(end[0], end[1]))
     return (x, y, vx, vy), duration, outcome, lowest
+
+
+_COMPILED_CONSTANTS = np.array([STEPS_PER_BURN, STEPS_PER_ORBIT, MASS_STEP, _NEWTON_STEPS, _MAX_STEPS, _LEAST_SPEED,
+                                _MAX_TURN], dtype=float)
+
+
+def _compiled():
+    """
+    The numba-compiled burn integrator (``finite_burn_compiled``), or None for this numpy one:
+    None when ``CAPSWEEP_KERNEL=numpy`` or numba does not import. Imported on first use.
+    """
+    if os.environ.get("CAPSWEEP_KERNEL", "").strip().lower() == "numpy":
+        return None
+    try:
+        from sweep.physics import finite_burn_compiled
+    except ImportError:
+        return None
+    return finite_burn_compiled
 
 
 def _finish(start, tau, dt, goal, end_energy, q: _Engine):
