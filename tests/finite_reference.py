@@ -35,6 +35,7 @@ per-point timing, by a benchmark.
 
 from __future__ import annotations
 
+import functools
 import math
 from typing import NamedTuple
 
@@ -384,6 +385,9 @@ def replay_flight(
 #   (flown beats failed, then the smaller miss). The miss of an ellipse is the apsis on the
 #   burn's side against the intended one; of a circle (eccentricity below ``ROUND``) the
 #   eccentricity vector times the semi-major axis, along and across the burn's end position.
+# * an ellipse whose aim by one control still misses (or that hits the surface) is aimed again,
+#   with both controls (``hybr``), to end on it at its apsis, horizontal: the circle's miss with
+#   the intended eccentricity; the better of the two flights by the ellipse's miss is kept.
 # * the rest is closed by an impulsive trim: the cheaper order of two apsis changes (vis-viva).
 #
 # Ignition of each burn: half its impulsive-equivalent time t_b = (m v_e / T)(1 - exp(-dv / v_e))
@@ -607,9 +611,7 @@ def fly_capture_aimed_reference(
                 return miss_of(outcome, end, periapsis, apoapsis, at_periapsis, round_), record
 
             arc = math.sqrt(v_inf * v_inf + 2.0 * gm / periapsis) * t_b
-            record, miss = aim(fly, [periapsis, 0.0], round_, [1.0, 0.05 * arc + 1.0], True,
-                               [periapsis - body_radius + 1e4, arc + 1e3])
-            approach = record[4]
+            aim_args = ([periapsis, 0.0], [1.0, 0.05 * arc + 1.0], True, [periapsis - body_radius + 1e4, arc + 1e3])
         else:
             a, e, _, _ = _elements(state, gm)
             speed = max(_speed_on(gm, radius, *_elements(state, gm)[2:]), 1.0)
@@ -639,7 +641,25 @@ def fly_capture_aimed_reference(
                 return miss_of(outcome, end, periapsis, apoapsis, at_periapsis, round_), record
 
             arc = speed * t_b
-            record, miss = aim(fly, [0.0, 0.0], round_, [0.01, 0.05 * arc + 1.0], False, [MAX_TURN, arc + 1e3])
+            aim_args = ([0.0, 0.0], [0.01, 0.05 * arc + 1.0], False, [MAX_TURN, arc + 1e3])
+        start_x, first_step, identity_first, scale = aim_args
+        record, miss = aim(fly, start_x, round_, first_step, identity_first, scale)
+        if not round_:
+            # An ellipse whose aim by one control missed (or hit the surface) is aimed again to end
+            # on it at its apsis, horizontal, with both controls; the better flight by the
+            # ellipse's own miss is kept (flown beats failed, then the smaller miss).
+            def ellipse_key(record, periapsis=periapsis, apoapsis=apoapsis, at_periapsis=at_periapsis):
+                found = miss_of(record[0], record[2], periapsis, apoapsis, at_periapsis, False)
+                return (0 if record[0] == "ok" else 1, math.inf if found is None else abs(found[0]))
+
+            key = ellipse_key(record)
+            if record[0] == "surface_impact" or (record[0] == "ok" and key[1] > AIM_TOLERANCE):
+                again, _ = aim(functools.partial(fly, round_=True), start_x, True, first_step, identity_first, scale)
+                if again is not None and ellipse_key(again) < key:
+                    record = again
+                miss = ellipse_key(record)[1]
+        if k == 0:
+            approach = record[4]
         outcome, duration, state, clock, _, low = record
         lowest = min(lowest, low)
         misses.append(miss)

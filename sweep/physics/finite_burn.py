@@ -119,6 +119,7 @@ MAX_PASSES = 8  # "auto" splits a burn over at most this many passes of its apsi
 TRIM_SPLIT = 1.0  # m/s: "auto" splits further where the trim would exceed this
 SPLIT_ARC = np.radians(10.0)  # "auto" splits only burns sweeping a wider arc than this per pass
 _AIM_STEPS = 12  # Broyden iterations at most per pass (after the first shot and the differences)
+_RESTARTS = 5  # a stalled aim starts afresh from its best flight this many times, its Jacobian measured there
 _STALL = 3  # iterations without the best miss shrinking by a tenth before the aim of a point stops
 _MAX_TURN = 0.5  # rad: the aim turns a later burn's thrust at most this far from its law, at the burn's ends
 _ROUND = 1e-3  # intended orbits of smaller eccentricity are aimed as circles (end on them, horizontal)
@@ -605,16 +606,19 @@ def _leg(flight, index, p: _Points, radius, energy, impulse, offset, rate, first
     return delta_v, duration, ignition
 
 
-def _miss(flight, gm, periapsis, apoapsis, at_periapsis):
+def _miss(flight, gm, periapsis, apoapsis, at_periapsis, at_apsis=None):
     """
     How far the orbit reached misses the intended one, in metres: (along, across), shape (n, 2).
 
     An ellipse is met when the apsis on the burn's side has its intended radius (``along``;
     ``across`` is then zero: the apse line may lie anywhere). A circle (eccentricity below
-    ``_ROUND``) needs the burn to end on it, horizontal: ``along`` is minus the semi-major
-    axis times the eccentricity along the position (positive when the burn ended high),
-    ``across`` the same across it. A surface impact gives its osculating periapsis minus the
-    intended one (negative), so an aim that sank too low climbs back; other failures give NaN.
+    ``_ROUND``), and an ellipse aimed to end at its apsis (``at_apsis``, True where so; default:
+    the circles), needs the burn to end on it at that apsis, horizontal: ``along`` is minus the
+    semi-major axis times the eccentricity vector's component along the position less the
+    intended eccentricity (signed: positive along for a periapsis), which is positive when the
+    burn ended high; ``across`` the semi-major axis times the component across it. A surface
+    impact gives its osculating periapsis minus the intended one (negative), so an aim that sank
+    too low climbs back; other failures give NaN.
     """
     outcome = flight["outcome"]
     state = tuple(flight[k] for k in _STATE)
@@ -622,7 +626,7 @@ def _miss(flight, gm, periapsis, apoapsis, at_periapsis):
     target_e = (apoapsis - periapsis) / (apoapsis + periapsis)
     axis = 0.5 * (periapsis + apoapsis)
     along_e, across_e = _eccentricity_vector(*state, gm)
-    round_ = target_e < _ROUND
+    round_ = target_e < _ROUND if at_apsis is None else at_apsis
     sign = np.where(at_periapsis, 1.0, -1.0)
     along = np.where(round_, -axis * (along_e - sign * target_e),
                      np.where(at_periapsis, reached_periapsis - periapsis, reached_apoapsis - apoapsis))
@@ -667,10 +671,12 @@ def _aim(fly, start, free, measure, first_step, limit, bounds):
         return ~np.isnan(miss[index]).any(axis=1) & (np.where(free[index], np.abs(miss[index]), 0.0)
                                                      > AIM_TOLERANCE).any(axis=1)
 
-    # The measured columns' differences, flown together in one call.
-    shots = [(column, np.flatnonzero(free[:, column] & open_(np.arange(n)))) for column in (0, 1) if measure[column]]
-    shots = [(column, index) for column, index in shots if index.size]
-    if shots:
+    def differences(points, columns):
+        """Measure the Jacobian's ``columns`` at ``x`` of ``points`` by differences, flown together in one call."""
+        shots = [(column, points[free[points, column]]) for column in (0, 1) if columns[column]]
+        shots = [(column, index) for column, index in shots if index.size]
+        if not shots:
+            return
         trials = []
         for column, index in shots:
             trial = x[index].copy()
@@ -683,12 +689,17 @@ def _aim(fly, start, free, measure, first_step, limit, bounds):
             start += index.size
             usable = np.isfinite(slope).all(axis=1) & (np.abs(slope[:, column]) > 1e-9)
             jacobian[index[usable], :, column] = slope[usable]
+
+    differences(np.flatnonzero(open_(np.arange(n))), measure)
     active = np.flatnonzero(open_(np.arange(n)))
-    halving = np.zeros((n, 2))
+    factor = np.ones(n)  # the share of its reach a step may take (halved after a step not taken)
     stalled = np.zeros(n, dtype=int)
-    for _ in range(_AIM_STEPS):
+    restarts = np.zeros(n, dtype=int)
+    steps = np.zeros(n, dtype=int)
+    for _ in range(_AIM_STEPS * (1 + _RESTARTS)):
         if active.size == 0:
             break
+        steps[active] += 1
         free_a = free[active]
         j = np.where(free_a[:, :, None] & free_a[:, None, :], jacobian[active], 0.0)
         j[:, 0, 0] = np.where(free_a[:, 0], j[:, 0, 0], 1.0)
@@ -698,15 +709,19 @@ def _aim(fly, start, free, measure, first_step, limit, bounds):
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = -np.stack([j[:, 1, 1] * f[:, 0] - j[:, 0, 1] * f[:, 1],
                                 j[:, 0, 0] * f[:, 1] - j[:, 1, 0] * f[:, 0]], axis=1) / det[:, None]
-        retry = (halving[active] != 0.0).any(axis=1)
-        step = np.where(retry[:, None], 0.5 * halving[active], newton)
-        reach = np.where(measure, limit[active], np.maximum(limit[active], 2.0 * np.abs(miss[active])))
-        step = np.where(free_a & np.isfinite(step), np.clip(step, -reach, reach), 0.0)
+        base = np.where(measure, limit[active], np.maximum(limit[active], 2.0 * np.abs(miss[active])))
+        reach = base * factor[active, None]
+        step = np.where(free_a & np.isfinite(newton), np.clip(newton, -reach, reach), 0.0)
         trial = np.clip(x[active] + step, lower[active], upper[active])
         step = trial - x[active]
         flight, new = fly(trial, active)
         failed = np.isnan(new).any(axis=1)
-        halving[active] = np.where(failed[:, None], step, 0.0)
+        with np.errstate(invalid="ignore"):
+            worse = ~failed & (np.hypot(*np.where(free_a, new, 0.0).T)
+                               > np.hypot(*np.where(free_a, miss[active], 0.0).T))
+        # A step that fails or misses by more (2-norm) is not taken; the next may reach half as far.
+        relative = np.where(free_a, np.abs(step) / base, 0.0).max(axis=1)
+        factor[active] = np.where(failed | worse, 0.5 * relative, np.minimum(2.0 * factor[active], 1.0))
         ok = np.flatnonzero(~failed)
         index = active[ok]
         if index.size:
@@ -715,17 +730,62 @@ def _aim(fly, start, free, measure, first_step, limit, bounds):
             predicted = np.einsum("ijk,ik->ij", jacobian[index], moved)
             correction = (change - predicted) / np.where(size > 0, size, np.inf)[:, None]
             jacobian[index] += correction[:, :, None] * moved[:, None, :]
-            x[index], miss[index] = trial[ok], new[ok]
+            taken = ok[~worse[ok]]
+            x[active[taken]], miss[active[taken]] = trial[taken], new[taken]
             better = _better(new[ok], flight["outcome"][ok], best_miss[index], best["outcome"][index])
             size_new = np.where(free[index], np.abs(new[ok]), 0.0).max(axis=1)
             size_best = np.where(free[index], np.abs(best_miss[index]), 0.0).max(axis=1)
             stalled[index] = np.where(size_new < 0.9 * size_best, 0, stalled[index] + 1)
             for key, value in flight.items():
                 best[key][..., index[better]] = value[..., ok[better]]
-            best_x[index[better]], best_miss[index[better]] = x[index[better]], miss[index[better]]
+            best_x[index[better]], best_miss[index[better]] = trial[ok[better]], new[ok[better]]
         stalled[active[failed]] += 1
-        active = active[(failed | open_(active)) & (stalled[active] < _STALL)]
+        going = failed | open_(active)
+        # A stalled aim starts afresh once from its best flight, every free column measured there.
+        spent = (stalled[active] >= _STALL) | (steps[active] >= _AIM_STEPS * (1 + restarts[active]))
+        stuck = active[going & spent & (restarts[active] < _RESTARTS) & np.isfinite(best_miss[active]).all(axis=1)]
+        if stuck.size:
+            restarts[stuck] += 1
+            stalled[stuck] = 0
+            factor[stuck] = 0.5 ** (restarts[stuck] - 1)  # each restart more cautious than the last
+            x[stuck], miss[stuck] = best_x[stuck], best_miss[stuck]
+            differences(stuck, (True, True))
+        active = active[going & (stalled[active] < _STALL) & (steps[active] < _AIM_STEPS * (1 + restarts[active]))]
     return best, best_x
+
+
+def _aim_at_apsis(fly, leg, x, round_, start, measure, first_step, limit, bounds, intended):
+    """
+    Aim again, to end at the apsis, the ellipses whose aim by one control left a miss.
+
+    One control (the approach periapsis, or the turn) cannot always place the apsis: for an
+    intended orbit of small eccentricity the reached eccentricity may have a floor above the
+    intended one. Ending on the intended orbit at its apsis, horizontal, is one way to meet it
+    that the ignition shift (the second control) can reach: the points of ``leg`` that flew but
+    missed by more than ``AIM_TOLERANCE`` (or hit the surface) are aimed again so, from
+    ``start``, with both controls. Each keeps the better flight by the ellipse's own miss
+    (flown beats failed, then the smaller miss). Returns the flights and controls of all points.
+    """
+    gm, periapsis, apoapsis, at_periapsis = intended
+    miss = _miss(leg, gm, periapsis, apoapsis, at_periapsis)
+    flown = leg["outcome"] == 0
+    retry = np.flatnonzero(~round_ & ((flown & (np.abs(miss[:, 0]) > AIM_TOLERANCE))
+                                      | (leg["outcome"] == OUTCOMES.index("surface_impact"))))
+    if retry.size == 0:
+        return leg, x
+
+    def fly_apsis(x_, index):
+        return fly(x_, retry[index], at_apsis=np.ones(round_.size, dtype=bool))
+
+    again, x_again = _aim(fly_apsis, start[retry], np.ones((retry.size, 2), dtype=bool), measure, first_step[retry],
+                          limit[retry], tuple(b[retry] for b in bounds))
+    new_miss = _miss(again, gm[retry], periapsis[retry], apoapsis[retry], at_periapsis[retry])
+    better = retry[_better(new_miss, again["outcome"], miss[retry], leg["outcome"][retry])]
+    chosen = _better(new_miss, again["outcome"], miss[retry], leg["outcome"][retry])
+    for key, value in again.items():
+        leg[key][..., better] = value[..., chosen]
+    x[better] = x_again[chosen]
+    return leg, x
 
 
 def _trim(gm, periapsis, apoapsis, target_periapsis, target_apoapsis):
@@ -830,7 +890,7 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
 
             def fly(x, index, first=first, before=before, q=q, energy=energy, impulse=impulse, expected=expected,
                     speed=speed, periapsis=periapsis, apoapsis=apoapsis, at_periapsis=at_periapsis, k=k, j=j,
-                    points=points):
+                    points=points, at_apsis=round_):
                 leg = {key: value[index].copy() for key, value in before.items()}
                 sub = q.take(index)
                 if first:  # x: approach periapsis radius, ignition shift along the track
@@ -844,7 +904,8 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
                 for key, value in zip(_RECORD, (*values, np.zeros(index.size) if rate is None else rate,
                                                 values[2] + 0.5 * expected[index], energy[index]), strict=True):
                     leg[key] = value
-                return leg, _miss(leg, sub.gm, periapsis[index], apoapsis[index], at_periapsis[index])
+                return leg, _miss(leg, sub.gm, periapsis[index], apoapsis[index], at_periapsis[index],
+                                  at_apsis[index])
 
             free = np.stack([np.full(points.size, aim), aim & round_], axis=1)
             if first:
@@ -864,6 +925,9 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
                 step = np.stack([np.full(points.size, 0.01), 0.05 * arc + 1.0], axis=1)
                 measure = (True, True)
             leg, x = _aim(fly, start, free, measure, step, limit, bounds)
+            if aim:
+                leg, x = _aim_at_apsis(fly, leg, x, round_, start, measure, step, limit, bounds,
+                                       (q.gm, periapsis, apoapsis, at_periapsis))
             failed_at[points[leg["outcome"] != 0]] = k
             for key in flight:
                 flight[key][points] = leg[key]
