@@ -3,7 +3,10 @@ for many points at once.
 
 Every point of a batch is advanced together with numpy arrays by a classical fourth-order
 Runge-Kutta scheme, each point with its own step size and its own stop condition. Coasts
-between burns are Keplerian and solved analytically. SI units throughout.
+between burns are Keplerian and solved analytically. SI units throughout. The burn
+integrator also exists compiled per point (``finite_burn_compiled``, numba), used when numba
+imports and the environment does not set ``CAPSWEEP_KERNEL=numpy``: same operations, same
+order, equal results (tested); the numpy one here is the reference and the fallback.
 
 Model
 -----
@@ -38,7 +41,13 @@ reaches has the intended apsides within 0.1 km (``AIM_TOLERANCE``, 70 m on each 
 
 The miss of an ellipse is the radius of its apsis on the burn's side against the intended
 one; the miss of a circle is the eccentricity vector times the semi-major axis, along and
-across the position where the burn ends. What aiming cannot remove is closed by an impulsive
+across the position where the burn ends. An ellipse that one control cannot meet (for a
+small intended eccentricity the reached one may have a floor above it) is aimed again with
+both controls to end on it at its apsis, horizontal (the circle's miss with the intended
+eccentricity), and the better flight kept. A Broyden step that fails or misses by more is
+not taken and the next may reach half as far; an aim that stalls starts afresh from its best
+flight with its Jacobian measured there by differences, up to five times, each start taking
+half the reach of the last. What aiming cannot remove is closed by an impulsive
 *trim* to the exact target orbit (any orientation): the cheaper order of two apsis changes,
 costed with vis-viva ([2]_ Ch. 2), reported apart and added to the total by the engine.
 

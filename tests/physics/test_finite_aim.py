@@ -139,8 +139,9 @@ def _small_trim(gm, target_radius):
 SEED = 20260601
 POINTS_PER_CASE = 3  # per body and strategy: 5 x 3 x 3 = 45 points
 STRATEGIES = ("direct", "two_burn", "three_burn")
-# Weak engines (T/W 0.05-0.1) into low circles: long burns the "auto" rule splits over passes.
-SPLIT_CASES = {"mars": 3, "venus": 3, "moon": 2}
+# Weak engines (T/W 0.01-0.03) into low circles: long burns the "auto" rule splits over passes
+# (at T/W 0.05-0.1 the aim now brings most of them on target in one pass).
+SPLIT_CASES = {"mars": 4, "venus": 4, "moon": 4}
 
 
 @functools.cache
@@ -162,7 +163,7 @@ def _spread():
         gm, radius, _, _ = BODIES[name]
         for _ in range(count):
             v_inf = rng.uniform(1500.0, 4000.0)
-            thrust_to_weight = rng.uniform(0.05, 0.1)
+            thrust_to_weight = rng.uniform(0.01, 0.03)
             r_t = radius * (1.0 + rng.uniform(0.03, 0.1))
             points.append((name, "direct", v_inf, thrust_to_weight, _plan("direct", gm, v_inf, None, r_t)))
     return points
@@ -210,7 +211,7 @@ def test_spread_is_mostly_flown_and_includes_split_captures():
     flown = _flown()
     assert len(flown) >= 40  # measured: every point ok
     split = [p for p, k, _ in flown if (k["passes"] > 1).any()]
-    assert len(split) >= 5, [_label(p) for p in split]  # measured 7 (six weak direct, one two_burn)
+    assert len(split) >= 5, [_label(p) for p in split]  # measured 11, all weak direct (2026-12-03)
 
 
 def test_replay_flies_every_flown_plan_without_hitting_the_surface():
@@ -223,7 +224,7 @@ def test_replay_flies_every_flown_plan_without_hitting_the_surface():
 def test_every_pass_delta_v_within_0_05_m_s_of_the_replay():
     # independent integration: scipy solve_ivp DOP853 at rtol 1e-11. Tolerance 0.05 m/s per
     # pass, as asked; the kernel's RK4 steps are documented as a few mm/s. Measured worst on
-    # this spread: 6.9e-3 m/s (a two-pass Venus capture at T/W 0.068); ~1e-3 m/s at Jupiter.
+    # this spread (2026-12-03): 0.012 m/s (a split Mars capture at T/W 0.021).
     for point, kernel, replay in _flown():
         passes = kernel["pass_delta_v"][np.isfinite(kernel["pass_delta_v"])]
         np.testing.assert_allclose(passes, replay.delta_v, rtol=0, atol=0.05, err_msg=_label(point))
@@ -235,17 +236,20 @@ def test_orbit_after_every_burn_matches_the_replay():
     # independent integration: solve_ivp. The kernel reports the orbit reached after each burn's
     # last pass. A delta-v error dv moves an apsis by ~2 dv/v relative (vis-viva, common
     # practice); the kernel's RK4 is documented to a few mm/s, i.e. ~1e-6 relative at the
-    # speeds here. Measured worst: 1.4e-6 (9.2 m, a two-pass Venus capture at T/W 0.068, whose
-    # pass delta-v is 6.9e-3 m/s off; it falls to 0.45 m with refinement=4, so it is the
-    # kernel's step error, not the replay's). Tolerance 1e-5 relative, as in
-    # test_finite_burn.py: 7x the measured worst.
+    # speeds here. Measured worst with the T/W 0.05-0.1 split cases: 1.4e-6 (9.2 m, a two-pass
+    # Venus capture at T/W 0.068, whose pass delta-v is 6.9e-3 m/s off; it falls to 0.45 m with
+    # refinement=4, so it is the kernel's step error, not the replay's). With the weaker T/W
+    # 0.01-0.03 split cases (2026-12-03): 1.16e-5 (21 m, a Moon capture at T/W 0.014 over
+    # several passes). Tolerance 5e-5 relative: the apsis shift of the 0.05 m/s
+    # delta-v agreement at the slowest orbit here (2 x 0.05 / 1,600 m/s, the Moon), 4x the
+    # measured worst.
     for point, kernel, replay in _flown():
         _, burn_of = _flight_plan(kernel)
         last = [max(i for i, b in enumerate(burn_of) if b == k) for k in range(len(kernel["delta_v"]))]
         np.testing.assert_allclose(kernel["periapsis_radius"], [replay.periapsis_radius[i] for i in last],
-                                   rtol=1e-5, err_msg=_label(point))
+                                   rtol=5e-5, err_msg=_label(point))
         np.testing.assert_allclose(kernel["apoapsis_radius"], [replay.apoapsis_radius[i] for i in last],
-                                   rtol=1e-5, err_msg=_label(point))
+                                   rtol=5e-5, err_msg=_label(point))
 
 
 def test_final_orbit_within_0_1_km_of_target_where_the_trim_is_small():
@@ -260,7 +264,7 @@ def test_final_orbit_within_0_1_km_of_target_where_the_trim_is_small():
             on_target += 1
             assert replay.periapsis_radius[-1] == pytest.approx(target_periapsis, abs=ON_TARGET), _label(point)
             assert replay.apoapsis_radius[-1] == pytest.approx(target_apoapsis, abs=ON_TARGET), _label(point)
-    assert on_target >= 0.8 * len(_flown())  # measured: all 53, worst replayed miss 61 m
+    assert on_target >= 0.8 * len(_flown())  # measured: all 57, worst replayed miss 74 m
 
 
 def test_trim_is_the_two_impulse_cost_of_the_miss():
@@ -268,8 +272,8 @@ def test_trim_is_the_two_impulse_cost_of_the_miss():
     # order of the two apsis changes. (1) From the kernel's own reported final orbit: the same
     # formula, so to rounding (1e-9 m/s). (2) From the replay's final orbit: the trim moves by
     # about v/(2r) per metre of apsis (vis-viva; ~1e-4 m/s per m at Mars), and the apsides agree
-    # to 1e-5 relative (test above), so allow v/(2r) * 2e-5 r = 1e-5 v (measured worst 5e-3 m/s,
-    # the 9 m Venus case; 1e-5 v is 0.08 m/s there).
+    # to about 1e-5 relative (test above, measured), so allow v/(2r) * 2e-5 r = 1e-5 v (measured
+    # worst 9.5e-3 m/s, the 21 m Moon case, where 1e-5 v is 0.016 m/s).
     for point, kernel, replay in _flown():
         gm = BODIES[point[0]][0]
         target = point[4][2][-1]
@@ -286,10 +290,10 @@ def test_lowest_radius_matches_the_replay():
     # integrated path. The kernel samples its RK4 step ends and the osculating periapsis where
     # the radial velocity turns within a step; under thrust the osculating periapsis is not
     # the path's minimum, so the kernel may sit above or below it when a burn acts through
-    # the periapsis. Measured: from 17 m below (Ganymede three_burn, T/W 0.15) to 67 m above
-    # (a two-pass Venus capture, 8 m above once its RK4 error is removed... see the apsides
-    # test). Tolerance: SAFE_TOLERANCE (0.1 km) either way, the margin the kernel itself
-    # allows before it reports below_safe_altitude; a larger error could pass an unsafe flight.
+    # the periapsis. Measured (2026-12-03): from 22 m below (a split Moon capture, T/W 0.014)
+    # to 31 m above (Jupiter three_burn, T/W 0.24). Tolerance: SAFE_TOLERANCE (0.1 km) either
+    # way, the margin the kernel itself allows before it reports below_safe_altitude; a larger
+    # error could pass an unsafe flight.
     for point, kernel, replay in _flown():
         assert float(kernel["lowest_radius"]) == pytest.approx(replay.lowest_radius, abs=SAFE_TOLERANCE), \
             _label(point)
@@ -460,8 +464,9 @@ def test_ganymede_120_km_circle_with_a_small_engine(thrust, strategy):
     # Ganymede (GM 9887.8 km^3/s^2, radius 2631.2 km, from memory), v_inf 0.4 km/s, 120 km
     # circular target, capture periapsis (two_burn) at the 100 km safe altitude; 90 N and
     # 220 N (T/W 0.0076 and 0.019): long burns, split over passes of the long ellipse bounded
-    # at half the Hill radius. Measured: direct ok at both thrusts (4 and 2 passes); two_burn
-    # below_safe_altitude at 90 N (8 passes, dips to 99.77 km), ok at 220 N (8 passes).
+    # at half the Hill radius. Measured (2026-12-03): all four ok in one pass per burn; the aim
+    # raises the approach periapsis to 2,648 km (direct) and 2,668 km (two_burn) at 90 N, to
+    # about 630 km at 220 N, and the long braking arc sinks onto the intended periapsis.
     gm, radius = BODIES["ganymede"][0], BODIES["ganymede"][1]
     plan = _plan(strategy, gm, 400.0, radius + GANYMEDE_SAFE_ALTITUDE, radius + 120e3)
     _assert_on_target_or_physical("ganymede", strategy, 400.0, thrust, plan, radius + GANYMEDE_SAFE_ALTITUDE,
@@ -472,9 +477,8 @@ def test_ganymede_120_km_circle_with_a_small_engine(thrust, strategy):
 def test_ganymede_1500_km_circle_at_3_km_s_with_220_n(strategy):
     # Ganymede, v_inf 3 km/s, 1500 km circular target, 220 N; capture periapsis at the 100 km
     # safe altitude, three_burn's apoapsis the impulsive optimum within the split bound.
-    # Measured: direct ok (2 passes), two_burn surface_impact (a 1.5 km/s capture burn lasting
-    # ~8000 s at 0.18 m/s^2 cannot be centred on a 100 km periapsis), three_burn
-    # below_safe_altitude (the missed capture leaves an orbit reaching down to ~15 km).
+    # Measured (2026-12-03): all three ok; direct in one pass (approach raised to 2,422 km),
+    # two_burn with its capture split over 2 passes, three_burn in one pass per burn.
     body = BODIES["ganymede"]
     _, plan = _case_plan("ganymede", strategy, 3000.0, GANYMEDE_SAFE_ALTITUDE, 1500e3, GANYMEDE_SPLIT)
     _assert_on_target_or_physical("ganymede", strategy, 3000.0, 220.0, plan, body[1] + GANYMEDE_SAFE_ALTITUDE,
@@ -517,20 +521,21 @@ def test_dip_below_the_safe_radius_is_below_safe_altitude():
 
 
 def test_hitting_the_surface_stays_surface_impact_with_a_safe_radius():
-    # Ganymede two_burn at v_inf 3 km/s, 220 N (the case of d): the capture burn hits the
-    # surface (kernel lowest radius below the body radius); with a safe radius given, the
-    # outcome stays surface_impact, not below_safe_altitude. The independent reference
-    # (centred, unaimed) hits the surface too.
+    # Ganymede two_burn at v_inf 3 km/s into 1,500 km with 90 N (the weaker engine of d; at
+    # 220 N the aim and a split now bring it on target): the capture burn hits the surface
+    # however it is aimed or split (kernel lowest radius below the body radius); with a safe
+    # radius given, the outcome stays surface_impact, not below_safe_altitude. The
+    # independent reference (centred, unaimed) hits the surface too.
     body = BODIES["ganymede"]
     gm, radius = body[0], body[1]
     _, plan = _case_plan("ganymede", "two_burn", 3000.0, GANYMEDE_SAFE_ALTITUDE, 1500e3, GANYMEDE_SPLIT)
-    result = _fly(body, 3000.0, 220.0, plan, safe_radius=radius + GANYMEDE_SAFE_ALTITUDE,
+    result = _fly(body, 3000.0, 90.0, plan, safe_radius=radius + GANYMEDE_SAFE_ALTITUDE,
                   split_apoapsis=GANYMEDE_SPLIT)
     assert OUTCOMES[int(result.outcome)] == "surface_impact"
     assert float(result.lowest_radius) < radius
     assert np.isnan(result.delta_v).all() and np.isnan(result.trim_delta_v)
     reference = fly_capture_reference(gm, radius, body[2], 3000.0, plan[0], plan[1],
-                                      [-gm / (a + b) for a, b in plan[2]], plan[3], 220.0, VE, MASS)
+                                      [-gm / (a + b) for a, b in plan[2]], plan[3], 90.0, VE, MASS)
     assert reference.outcome == "surface_impact"
 
 
