@@ -300,6 +300,11 @@ def _coast_back(state, duration, gm):
     the universal anomaly: exact for hyperbolic, parabolic (zero excess speed) and elliptic arcs.
     """
     x0, y0, vx0, vy0 = (np.asarray(s, dtype=float) for s in state)
+    compiled = _compiled()
+    if compiled is not None:
+        n = x0.size
+        return compiled.coast_back(*(np.ascontiguousarray(np.broadcast_to(v, (n,)), dtype=float) for v in (
+            x0, y0, vx0, vy0, duration, gm)), _KEPLER_STEPS)
     r0 = np.sqrt(x0 * x0 + y0 * y0)
     radial = (x0 * vx0 + y0 * vy0) / r0
     alpha = 2.0 / r0 - (vx0 * vx0 + vy0 * vy0) / gm  # reciprocal semi-major axis
@@ -655,7 +660,7 @@ def _better(new_miss, new_outcome, old_miss, old_outcome):
     return (new_ok & ~old_ok) | ((new_ok == old_ok) & smaller)
 
 
-def _aim(fly, start, free, measure, first_step, limit, bounds):
+def _aim(fly, start, free, measure, first_step, limit, bounds, most_restarts=_RESTARTS):
     """
     Aim by Broyden's method, all points in lockstep ([4]_): find ``x`` (n, 2) whose flight
     ``fly(x, index) -> (flight dict, misses (m, 2))`` misses by at most ``AIM_TOLERANCE`` in
@@ -705,7 +710,8 @@ def _aim(fly, start, free, measure, first_step, limit, bounds):
     stalled = np.zeros(n, dtype=int)
     restarts = np.zeros(n, dtype=int)
     steps = np.zeros(n, dtype=int)
-    for _ in range(_AIM_STEPS * (1 + _RESTARTS)):
+    most_restarts = np.broadcast_to(most_restarts, (n,))
+    for _ in range(_AIM_STEPS * (1 + int(most_restarts.max(initial=0)))):
         if active.size == 0:
             break
         steps[active] += 1
@@ -750,9 +756,10 @@ def _aim(fly, start, free, measure, first_step, limit, bounds):
             best_x[index[better]], best_miss[index[better]] = trial[ok[better]], new[ok[better]]
         stalled[active[failed]] += 1
         going = failed | open_(active)
-        # A stalled aim starts afresh once from its best flight, every free column measured there.
+        # A stalled (or spent) aim starts afresh from its best flight, every free column measured there.
         spent = (stalled[active] >= _STALL) | (steps[active] >= _AIM_STEPS * (1 + restarts[active]))
-        stuck = active[going & spent & (restarts[active] < _RESTARTS) & np.isfinite(best_miss[active]).all(axis=1)]
+        stuck = active[going & spent & (restarts[active] < most_restarts[active])
+                       & np.isfinite(best_miss[active]).all(axis=1)]
         if stuck.size:
             restarts[stuck] += 1
             stalled[stuck] = 0
@@ -933,7 +940,8 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
                           np.stack([np.full(points.size, 2 * _MAX_TURN), np.full(points.size, np.inf)], axis=1))
                 step = np.stack([np.full(points.size, 0.01), 0.05 * arc + 1.0], axis=1)
                 measure = (True, True)
-            leg, x = _aim(fly, start, free, measure, step, limit, bounds)
+            # An ellipse that one control cannot meet is aimed again at its apsis below: no restarts here.
+            leg, x = _aim(fly, start, free, measure, step, limit, bounds, np.where(round_, _RESTARTS, 0))
             if aim:
                 leg, x = _aim_at_apsis(fly, leg, x, round_, start, measure, step, limit, bounds,
                                        (q.gm, periapsis, apoapsis, at_periapsis))

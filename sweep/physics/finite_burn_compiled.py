@@ -169,3 +169,79 @@ def burn(x, y, vx, vy, gm, thrust, mass, flow, sign, ux, uy, rate, middle, fixed
             outcome[i] = exhausted_code  # still burning at the step cap (state and duration as at ignition)
             lowest[i] = low
     return duration, outcome, lowest
+
+
+@njit(cache=True, inline="always")
+def _stumpff(z):
+    """Stumpff C(z), S(z): series near 0, else the trigonometric or hyperbolic branch (finite_burn._stumpff)."""
+    if abs(z) < 1e-3:
+        return (1 / 2 - z / 24 + z**2 / 720 - z**3 / 40320, 1 / 6 - z / 120 + z**2 / 5040 - z**3 / 362880)
+    root = math.sqrt(abs(z))
+    if z > 0:
+        return (1.0 - math.cos(root)) / root**2, (root - math.sin(root)) / root**3
+    return -1.0 * (1.0 - math.cosh(root)) / root**2, -1.0 * (root - math.sinh(root)) / root**3
+
+
+@njit(cache=True, inline="always")
+def _time_residual(chi, alpha, offset, r0, target):
+    """The universal time equation's residual and slope in chi (finite_burn._coast_back)."""
+    z = alpha * chi * chi
+    c, s = _stumpff(z)
+    residual = offset * chi * chi * c + (1.0 - alpha * r0) * chi**3 * s + r0 * chi - target
+    if not math.isfinite(residual):
+        residual = math.copysign(np.inf, chi) if chi != 0.0 else 0.0 * np.inf
+    return residual, offset * chi * (1.0 - z * s) + (1.0 - alpha * r0) * chi * chi * c + r0
+
+
+@njit(cache=True)
+def coast_back(x0, y0, vx0, vy0, duration, gm, kepler_steps):
+    """
+    Coast every point back in time by ``duration`` from its state: ``finite_burn._coast_back``
+    per point (universal variables, safeguarded Newton, Lagrange coefficients; its docstring
+    names the source). Returns x, y, vx, vy.
+    """
+    n = x0.size
+    out_x, out_y, out_vx, out_vy = np.empty(n), np.empty(n), np.empty(n), np.empty(n)
+    for i in range(n):
+        px, py, pvx, pvy, mu = x0[i], y0[i], vx0[i], vy0[i], gm[i]
+        r0 = math.sqrt(px * px + py * py)
+        radial = (px * pvx + py * pvy) / r0
+        alpha = 2.0 / r0 - (pvx * pvx + pvy * pvy) / mu
+        root_mu = math.sqrt(mu)
+        dt = -duration[i]
+        low, high = min(root_mu * dt / r0, 0.0), max(root_mu * dt / r0, 0.0)
+        offset = r0 * radial / root_mu
+        near = root_mu * dt / r0
+        semi_major = 1.0 / (-alpha) if alpha < 0 else np.inf
+        eccentricity = 1.0 - alpha * r0
+        mean_anomaly = math.sqrt(mu / semi_major**3) * dt
+        far = math.sqrt(semi_major) * math.asinh(mean_anomaly / eccentricity) if alpha < 0 else near
+        target = root_mu * dt
+        near_residual = _time_residual(near, alpha, offset, r0, target)[0]
+        far_residual = _time_residual(far, alpha, offset, r0, target)[0]
+        chi = far if abs(far_residual) < abs(near_residual) else near
+        last_step = high - low
+        for _ in range(kepler_steps):
+            residual, slope = _time_residual(chi, alpha, offset, r0, target)
+            lo = chi if residual < 0 else low
+            hi = chi if residual > 0 else high
+            newton = chi - residual / slope
+            good = math.isfinite(newton) and lo <= newton <= hi and abs(2.0 * residual) <= abs(last_step * slope)
+            update = newton if good else 0.5 * (lo + hi)
+            low, high = lo, hi
+            last_step = update - chi
+            converged = abs(update - chi) <= 1e-11 * max(abs(chi), 1.0)
+            chi = update
+            if converged:
+                break
+        z = alpha * chi * chi
+        c, s = _stumpff(z)
+        f = 1.0 - chi * chi / r0 * c
+        g = dt - chi**3 / root_mu * s
+        x, y = f * px + g * pvx, f * py + g * pvy
+        r = math.sqrt(x * x + y * y)
+        f_dot = root_mu / (r * r0) * (alpha * chi**3 * s - chi)
+        g_dot = 1.0 - chi * chi / r * c
+        out_x[i], out_y[i] = x, y
+        out_vx[i], out_vy[i] = f_dot * px + g_dot * pvx, f_dot * py + g_dot * pvy
+    return out_x, out_y, out_vx, out_vy
