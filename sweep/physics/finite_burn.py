@@ -669,9 +669,13 @@ def _aim(fly, start, free, measure, first_step, limit, bounds, most_restarts=_RE
     ``first_step`` (n, 2) where that coordinate is free. Steps are clipped to ``limit`` (n, 2),
     or twice the miss for an unmeasured coordinate (its miss is in its own units, one for one);
     ``x`` stays within ``bounds`` (lower, upper), each (n, 2). A step whose flight fails (NaN
-    miss) is halved and tried again. A point whose best miss has not shrunk by a tenth in
-    ``_STALL`` iterations is left as it is: its burn cannot reach the orbit this way (a split
-    may). Returns the best flight found (flown beats failed, then the smaller miss), its ``x``.
+    miss) or misses by more (2-norm) is not taken, and the next step may reach only half as
+    far as it did; a taken step doubles the reach again, up to the limit. A point whose best
+    miss has not shrunk by a tenth in ``_STALL`` iterations, or that spent ``_AIM_STEPS``, starts
+    afresh from its best flight with every free column measured there, at most
+    ``most_restarts`` times (per point, or one for all), each start reaching half as far as the
+    last; then it is left as it is: its burn cannot reach the orbit this way (a split may).
+    Returns the best flight found (flown beats failed, then the smaller miss), its ``x``.
     """
     lower, upper = bounds
     n = start.shape[0]
