@@ -395,7 +395,7 @@ def replay_flight(
 # lies nearest the burn radius), moved later by shift / v (v: the approach periapsis speed for
 # burn 1, the vis-viva speed at the burn radius on the orbit reached for later burns); at once if
 # that moment has passed. dv is the vis-viva speed change of the impulsive plan at that radius.
-AIM_TOLERANCE = 50.0  # m
+AIM_TOLERANCE = 15.0  # m: a little inside the kernel's 20 m, so the reference is the sharper of the two
 AIM_FLIGHTS = 15  # flights per burn's aim at most (the first shot and the differences included)
 ROUND = 1e-3  # intended orbits below this eccentricity are aimed as circles
 SAFE_MARGIN = 100.0  # m: a coast passing this far below the body radius is below_safe_altitude

@@ -57,7 +57,7 @@ def test_very_high_thrust_recovers_the_impulsive_answer(finite_cube):
     both = np.isfinite(finite) & np.isfinite(impulsive)
     assert both.sum() > 50
     # T/W 1000: burns last well under a second and their losses are below a mm/s; the trim that
-    # closes the aim's last <= 50 m (sweep.physics.finite_burn.AIM_TOLERANCE) costs up to a few cm/s
+    # closes the aim's last <= 20 m (sweep.physics.finite_burn.AIM_TOLERANCE) costs up to a few cm/s
     np.testing.assert_allclose(finite[both], impulsive[both], atol=5e-2)
     crossing = cube.finite_crossover_v_inf.isel(thrust=-1).values
     reference = cube.crossover_v_inf.values

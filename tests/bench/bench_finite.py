@@ -14,7 +14,7 @@ In one run it
   batches of 16,384 points, the engine's chunk size), and for the first ``--reference-points``
   points with the independent per-point aimed reference
   ``tests/finite_reference.fly_capture_aimed_reference`` (solve_ivp DOP853 flights, controls
-  found with scipy.optimize root finders to the same 50 m aim tolerance, vis-viva trim);
+  found with scipy.optimize root finders to a 15 m aim tolerance, vis-viva trim);
 * prints the time per point of each, the ratio, and the agreement of the total delta-v (burns
   plus trim) over sequences both call flown: the largest difference, the 99th percentile, how
   many exceed the target, and the count of differing outcomes; and the same agreement over the
@@ -59,13 +59,13 @@ ISP, MASS = 320.0, 1000.0
 BATCH = 1 << 14  # points per fly_capture call: the engine's finite-burn chunk (finite_chunks)
 RATIO_TARGET, WORKER_TARGET, AGREEMENT = 500.0, 1.7, 0.05  # x, x, m/s
 # m/s: a sequence with a larger trim counts as not brought on target by its aim. An apsis 70 m off
-# (the kernel's aim tolerance) costs about v dr / (2 r) to fix: 0.03 m/s for a low Mars circle, 0.02
-# m/s at Jupiter (vis-viva, common practice); 0.1 m/s leaves room for the reference's 50 m too.
+# costs about v dr / (2 r) to fix: 0.03 m/s for a low Mars circle, 0.02 m/s at Jupiter (vis-viva,
+# common practice); the aims stop at 20 m (kernel) and 15 m (reference), well inside.
 ON_TARGET_TRIM = 0.1
 # The reference's DOP853 tolerance for the timed run: loose enough to be a fair, fast baseline,
 # tight enough for its own delta-v to agree within 0.05 m/s. Measured on a Jupiter three_burn
 # point (T/W 1, a 16 km/s final burn): rtol 1e-8 is 0.04 m/s off the rtol 1e-10 flight, 1e-9
-# 0.003 m/s; the 50 m aim tolerance on its 2.6e6 km apoapsis also needs 1e-9 (1e-8: ~75 m noise).
+# 0.003 m/s; an aim tolerance of tens of metres on its 2.6e6 km apoapsis also needs 1e-9 (1e-8: ~75 m noise).
 REFERENCE_RTOL = 1e-9
 
 SWEEP = """

@@ -355,7 +355,7 @@ def test_gravity_loss_falls_as_inverse_square_of_thrust(strategy):
     # below, and losses well above the aim's trim (~0.03 m/s), so not beyond T/W ~4 here.
     # Tolerance per pair, derived: the next term of the expansion, O((n t_b)^2) relative to
     # each loss, enters the ratio as ~4 (n t_b)^2; and each loss carries the trim of an aim
-    # miss of up to AIM_TOLERANCE on each eccentricity component (sqrt(2) x 50 m on the
+    # miss of up to AIM_TOLERANCE on each eccentricity component (sqrt(2) x 20 m on the
     # apsides), so the ratio moves by at most (trim + 4 trim) / loss_2T. Tolerances 0.37, 0.34
     # (direct), 0.20, 0.20 (two_burn); measured ratios 3.91, 3.98 and 4.03, 4.00. A 1/T law
     # (ratio 2) or 1/T^3 (ratio 8) fails.

@@ -12,7 +12,7 @@ the suite runs with the compiled code, the default.
    round differently in the last place. The same for the coast back along the approach.
 2. Whole aimed sequences over a seeded spread (all strategies, split captures, weak engines)
    give the same outcome and passes everywhere, and totals within 0.025 m/s: a last-place
-   difference changes the path of an aim inside its 70 m tolerance, and the trim closes what
+   difference changes the path of an aim inside its 20 m tolerance, and the trim closes what
    is left, so the two aims may stop at different points of the tolerance (measured at most
    0.0104 m/s over 3,600 sequences, 2026-12-03); 0.025 m/s is half the issue's agreement.
 
