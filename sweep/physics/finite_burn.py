@@ -955,7 +955,7 @@ def _fly_plan(p: _Points, v_inf, approach, plan: _Plan, mass, steering, refineme
                 measure = (True, True)
             # A first burn aimed to end at its apsis starts from an earlier ignition (_FIRST_SHIFT).
             at_apsis_start = start.copy()
-            if first:
+            if first and aim:
                 at_apsis_start[:, 1] = _FIRST_SHIFT * arc
             # An ellipse that one control cannot meet is aimed again at its apsis below: no restarts here.
             leg, x = _aim(fly, np.where(round_[:, None], at_apsis_start, start), free, measure, step, limit, bounds,

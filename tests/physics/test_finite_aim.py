@@ -139,8 +139,8 @@ def _small_trim(gm, target_radius):
 SEED = 20260601
 POINTS_PER_CASE = 3  # per body and strategy: 5 x 3 x 3 = 45 points
 STRATEGIES = ("direct", "two_burn", "three_burn")
-# Weak engines (T/W 0.01-0.03) into low circles: long burns the "auto" rule splits over passes
-# (at T/W 0.05-0.1 the aim now brings most of them on target in one pass).
+# Weak engines (T/W 0.01-0.02) into low circles: long burns the "auto" rule splits over passes
+# (at T/W 0.02 and above the aim brings most of them on target in one pass).
 SPLIT_CASES = {"mars": 4, "venus": 4, "moon": 4}
 
 
@@ -163,7 +163,7 @@ def _spread():
         gm, radius, _, _ = BODIES[name]
         for _ in range(count):
             v_inf = rng.uniform(1500.0, 4000.0)
-            thrust_to_weight = rng.uniform(0.01, 0.03)
+            thrust_to_weight = rng.uniform(0.01, 0.02)
             r_t = radius * (1.0 + rng.uniform(0.03, 0.1))
             points.append((name, "direct", v_inf, thrust_to_weight, _plan("direct", gm, v_inf, None, r_t)))
     return points
@@ -209,9 +209,9 @@ def test_spread_is_mostly_flown_and_includes_split_captures():
     results = _comparison()
     assert len(results) == 45 + sum(SPLIT_CASES.values())
     flown = _flown()
-    assert len(flown) >= 40  # measured: every point ok
+    assert len(flown) >= 40  # measured 55 of 57 (two weak direct captures hit the surface)
     split = [p for p, k, _ in flown if (k["passes"] > 1).any()]
-    assert len(split) >= 5, [_label(p) for p in split]  # measured 11, all weak direct (2026-12-03)
+    assert len(split) >= 5, [_label(p) for p in split]  # measured 6, all weak direct (2026-12-03)
 
 
 def test_replay_flies_every_flown_plan_without_hitting_the_surface():
@@ -224,7 +224,7 @@ def test_replay_flies_every_flown_plan_without_hitting_the_surface():
 def test_every_pass_delta_v_within_0_05_m_s_of_the_replay():
     # independent integration: scipy solve_ivp DOP853 at rtol 1e-11. Tolerance 0.05 m/s per
     # pass, as asked; the kernel's RK4 steps are documented as a few mm/s. Measured worst on
-    # this spread (2026-12-03): 0.012 m/s (a split Mars capture at T/W 0.021).
+    # this spread (2026-12-03): 0.011 m/s (a split Moon capture at T/W 0.012).
     for point, kernel, replay in _flown():
         passes = kernel["pass_delta_v"][np.isfinite(kernel["pass_delta_v"])]
         np.testing.assert_allclose(passes, replay.delta_v, rtol=0, atol=0.05, err_msg=_label(point))
@@ -239,10 +239,9 @@ def test_orbit_after_every_burn_matches_the_replay():
     # speeds here. Measured worst with the T/W 0.05-0.1 split cases: 1.4e-6 (9.2 m, a two-pass
     # Venus capture at T/W 0.068, whose pass delta-v is 6.9e-3 m/s off; it falls to 0.45 m with
     # refinement=4, so it is the kernel's step error, not the replay's). With the weaker T/W
-    # 0.01-0.03 split cases (2026-12-03): 1.16e-5 (21 m, a Moon capture at T/W 0.014 over
-    # several passes). Tolerance 5e-5 relative: the apsis shift of the 0.05 m/s
-    # delta-v agreement at the slowest orbit here (2 x 0.05 / 1,600 m/s, the Moon), 4x the
-    # measured worst.
+    # 0.01-0.02 split cases (2026-12-03): 3.0e-5 (a Moon capture at T/W 0.011 over several
+    # passes). Tolerance 5e-5 relative: the apsis shift of the 0.05 m/s delta-v
+    # agreement at the slowest orbit here (2 x 0.05 / 1,600 m/s, the Moon).
     for point, kernel, replay in _flown():
         _, burn_of = _flight_plan(kernel)
         last = [max(i for i, b in enumerate(burn_of) if b == k) for k in range(len(kernel["delta_v"]))]
@@ -264,7 +263,7 @@ def test_final_orbit_within_0_1_km_of_target_where_the_trim_is_small():
             on_target += 1
             assert replay.periapsis_radius[-1] == pytest.approx(target_periapsis, abs=ON_TARGET), _label(point)
             assert replay.apoapsis_radius[-1] == pytest.approx(target_apoapsis, abs=ON_TARGET), _label(point)
-    assert on_target >= 0.8 * len(_flown())  # measured: all 57, worst replayed miss 74 m
+    assert on_target >= 0.8 * len(_flown())  # measured: 53 of 55, worst replayed miss 61 m
 
 
 def test_trim_is_the_two_impulse_cost_of_the_miss():
@@ -272,8 +271,9 @@ def test_trim_is_the_two_impulse_cost_of_the_miss():
     # order of the two apsis changes. (1) From the kernel's own reported final orbit: the same
     # formula, so to rounding (1e-9 m/s). (2) From the replay's final orbit: the trim moves by
     # about v/(2r) per metre of apsis (vis-viva; ~1e-4 m/s per m at Mars), and the apsides agree
-    # to about 1e-5 relative (test above, measured), so allow v/(2r) * 2e-5 r = 1e-5 v (measured
-    # worst 9.5e-3 m/s, the 21 m Moon case, where 1e-5 v is 0.016 m/s).
+    # to 5e-5 relative (test above), so allow v/(2r) * 2 x 5e-5 r = 5e-5 v (measured worst
+    # 0.023 m/s, a split Moon capture at T/W 0.011 with a 24 m/s trim, where 5e-5 v is
+    # 0.08 m/s).
     for point, kernel, replay in _flown():
         gm = BODIES[point[0]][0]
         target = point[4][2][-1]
@@ -281,7 +281,7 @@ def test_trim_is_the_two_impulse_cost_of_the_miss():
         own = trim_cost(gm, *reached, *target)
         assert float(kernel["trim_delta_v"]) == pytest.approx(own, abs=1e-9), _label(point)
         replayed = trim_cost(gm, replay.periapsis_radius[-1], replay.apoapsis_radius[-1], *target)
-        allowance = 1e-5 * _speed(gm, target[0], *target)
+        allowance = 5e-5 * _speed(gm, target[0], *target)
         assert float(kernel["trim_delta_v"]) == pytest.approx(replayed, abs=allowance), _label(point)
 
 
@@ -290,7 +290,7 @@ def test_lowest_radius_matches_the_replay():
     # integrated path. The kernel samples its RK4 step ends and the osculating periapsis where
     # the radial velocity turns within a step; under thrust the osculating periapsis is not
     # the path's minimum, so the kernel may sit above or below it when a burn acts through
-    # the periapsis. Measured (2026-12-03): from 22 m below (a split Moon capture, T/W 0.014)
+    # the periapsis. Measured (2026-12-03): from 55 m below (a split Moon capture, T/W 0.011)
     # to 31 m above (Jupiter three_burn, T/W 0.24). Tolerance: SAFE_TOLERANCE (0.1 km) either
     # way, the margin the kernel itself allows before it reports below_safe_altitude; a larger
     # error could pass an unsafe flight.
@@ -452,8 +452,8 @@ def test_venus_400_km_circle_with_4000_n_direct():
     plan = _plan("direct", gm, 3000.0, None, radius + 400e3)
     outcome, lowest = _assert_on_target_or_physical("venus", "direct", 3000.0, 4000.0, plan,
                                                     radius + VENUS_SAFE_ALTITUDE)
-    assert outcome == "ok"  # a 4 kN engine at T/W 0.34 is ample here (measured trim 0.024 m/s, 43 m miss)
-    assert lowest >= radius + VENUS_SAFE_ALTITUDE  # never below the safe radius, no margin used (measured 399.96 km)
+    assert outcome == "ok"  # a 4 kN engine at T/W 0.34 is ample here (measured trim 0.008 m/s)
+    assert lowest >= radius + VENUS_SAFE_ALTITUDE  # never below the safe radius, no margin used (measured 399.985 km)
 
 
 GANYMEDE_LOW = [(thrust, strategy) for thrust in (90.0, 220.0) for strategy in ("direct", "two_burn")]
@@ -477,8 +477,9 @@ def test_ganymede_120_km_circle_with_a_small_engine(thrust, strategy):
 def test_ganymede_1500_km_circle_at_3_km_s_with_220_n(strategy):
     # Ganymede, v_inf 3 km/s, 1500 km circular target, 220 N; capture periapsis at the 100 km
     # safe altitude, three_burn's apoapsis the impulsive optimum within the split bound.
-    # Measured (2026-12-03): all three ok; direct in one pass (approach raised to 2,422 km),
-    # two_burn with its capture split over 2 passes, three_burn in one pass per burn.
+    # Measured (2026-12-03): direct and two_burn ok in one pass per burn (approach raised to
+    # 2,422 and 1,317 km); three_burn below_safe_altitude: its final burn, split over 8
+    # passes, dips to 99.78 km, 0.22 km under the 100 km floor.
     body = BODIES["ganymede"]
     _, plan = _case_plan("ganymede", strategy, 3000.0, GANYMEDE_SAFE_ALTITUDE, 1500e3, GANYMEDE_SPLIT)
     _assert_on_target_or_physical("ganymede", strategy, 3000.0, 220.0, plan, body[1] + GANYMEDE_SAFE_ALTITUDE,
@@ -490,8 +491,9 @@ def test_ganymede_1500_km_circle_at_3_km_s_with_220_n(strategy):
 # =======================================================================================
 def test_dip_below_the_safe_radius_is_below_safe_altitude():
     # Mars direct capture into a 300 km circle at v_inf 4 km/s with T/W 0.05 (test input),
-    # split over passes of a long ellipse: the long capture pass dips below the target circle
-    # (measured lowest altitude ~281 km), though the impulsive plan never goes below 300 km.
+    # split over two passes of a long ellipse (given: "auto" now flies it in one pass that
+    # stays above 299.99 km): the long capture pass dips below the target circle (measured
+    # lowest altitude 281 km), though the impulsive plan never goes below 300 km.
     # The replay (solve_ivp) gives the lowest radius L. A safe radius 5 km above L (still below
     # the target) must give below_safe_altitude, one 5 km below it ok (5 km: far outside the
     # kernel's 0.1 km margin and its sampling error).
@@ -499,8 +501,8 @@ def test_dip_below_the_safe_radius_is_below_safe_altitude():
     gm, radius = body[0], body[1]
     v_inf, thrust, r_t = 4000.0, float(_thrust(0.05)), radius + 300e3
     plan = _plan("direct", gm, v_inf, None, r_t)
-    free = _column(_fly(body, v_inf, thrust, plan, split_apoapsis=_split_bound(body)))
-    assert int(free["outcome"]) == OK and int(free["passes"][0]) > 1
+    free = _column(_fly(body, v_inf, thrust, plan, split_apoapsis=_split_bound(body), passes=np.array([2])))
+    assert int(free["outcome"]) == OK and int(free["passes"][0]) == 2
     replay = _replay(body, v_inf, thrust, free)
     lowest = replay.lowest_radius
     assert lowest < r_t - 10e3  # the dip is real: well below every orbit of the impulsive plan
