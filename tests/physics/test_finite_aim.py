@@ -263,7 +263,7 @@ def test_final_orbit_within_0_1_km_of_target_where_the_trim_is_small():
             on_target += 1
             assert replay.periapsis_radius[-1] == pytest.approx(target_periapsis, abs=ON_TARGET), _label(point)
             assert replay.apoapsis_radius[-1] == pytest.approx(target_apoapsis, abs=ON_TARGET), _label(point)
-    assert on_target >= 0.8 * len(_flown())  # measured: 53 of 55, worst replayed miss 61 m
+    assert on_target >= 0.8 * len(_flown())  # measured: 53 of 55, worst replayed miss 66 m
 
 
 def test_trim_is_the_two_impulse_cost_of_the_miss():
