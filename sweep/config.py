@@ -136,6 +136,15 @@ class Crossover(_Model):
     v_inf_max: Annotated[float, Field(gt=0, le=_MAX_V_INF)] = 30.0
 
 
+class Ranking(_Model):
+    """How strategies are ranked at a grid point."""
+
+    # m/s: strategies within this of the cheapest are tied, and the tie goes to the simpler one.
+    # 1 m/s is our choice (not a published value): below the finite-burn trims, navigation and
+    # model differences a preliminary estimate carries, so a smaller saving is not a win.
+    tie_tolerance: Annotated[float, Field(ge=0, le=1000)] = 1.0
+
+
 class TargetOrbit(_Model):
     """An elliptical target: its periapsis altitude is the grid's target_altitude."""
 
@@ -183,6 +192,7 @@ class ConfigFile(_Model):
     three_burn: ThreeBurn = ThreeBurn()
     crossover: Crossover = Crossover()
     finite_burn: FiniteBurn = FiniteBurn()
+    ranking: Ranking = Ranking()
     target_orbit: TargetOrbit = TargetOrbit()
     bodies: dict[str, BodyFields] = {}
 
@@ -209,6 +219,7 @@ class SweepConfig:
     steering: str  # finite-burn steering law
     finite_passes: int | str  # passes of a split capture: a count or "auto"
     finite_max_passes: int  # the most passes "auto" gives one burn
+    tie_tolerance: float  # m/s: strategies within it of the cheapest are tied; the simpler one wins
     text: str  # the TOML exactly as read
     path: str  # where it was read from
     target_apoapsis_altitude: float | None = None  # km: elliptical target with this apoapsis ...
@@ -407,6 +418,7 @@ def parse_config(text: str, path: str = "<config>") -> SweepConfig:
         steering=model.finite_burn.steering,
         finite_passes=model.finite_burn.passes,
         finite_max_passes=model.finite_burn.max_passes,
+        tie_tolerance=model.ranking.tie_tolerance,
         text=text,
         path=path,
     )

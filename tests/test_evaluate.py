@@ -69,13 +69,19 @@ def test_time_limit_bounds_three_burn(small_cube):
     assert float(cube.intermediate_apoapsis_altitude.isel(body=0).max()) < float(cube.apoapsis_bound[0])
 
 
-def test_best_strategy_is_the_cheapest_feasible(small_cube):
-    _, cube = small_cube
+def test_best_strategy_is_the_simplest_within_the_tie_tolerance_of_the_cheapest(small_cube):
+    # Rule of [ranking] tie_tolerance (default 1 m/s): the winner costs at most the tolerance
+    # more than the cheapest, and no simpler strategy (earlier in the registry) does.
+    config, cube = small_cube
     delta_v = cube.delta_v.values
     best = cube.best_strategy.values
     feasible = ~np.isnan(delta_v).all(axis=0)
+    cheapest = np.fmin.reduce(delta_v, axis=0)
     chosen = np.take_along_axis(delta_v, np.where(best < 0, 0, best)[None], axis=0)[0]
-    assert (chosen[feasible] == np.fmin.reduce(delta_v, axis=0)[feasible]).all()
+    assert (chosen[feasible] <= cheapest[feasible] + config.tie_tolerance).all()
+    for simpler in range(delta_v.shape[0]):
+        before = feasible & (best > simpler)
+        assert not (delta_v[simpler][before] <= cheapest[before] + config.tie_tolerance).any()
     assert (cube.saving_over_direct.values[feasible] >= 0).all()
 
 

@@ -58,6 +58,8 @@ BAD_INPUTS = [
     ("target_altitude = [300.0, 5000.0]", "target_altitude = [300.0, nan]",
      r"grid\.target_altitude\.1: Input should be a finite number \(got nan\)"),
     ("specific_impulse = 320.0", "specific_impulse = inf", r"spacecraft\.specific_impulse: Input should be a finite"),
+    ("[spacecraft]", "[ranking]\ntie_tolerance = -1.0\n[spacecraft]",
+     r"ranking\.tie_tolerance: Input should be greater than or equal to 0"),
     ("[spacecraft]", "[finite_burn]\npasses = 0\n[spacecraft]",
      r'finite_burn\.passes: should be "auto" or a whole number of passes from 1 to 64 \(got 0\)'),
     ("v_inf = { start = 0.5,", "v_inf = { start = -0.5,", r"grid\.v_inf: arrival speeds must be >= 0 km/s"),

@@ -49,7 +49,7 @@ KEYS = ["name", "description", "grid", "spacecraft", "three_burn", "crossover", 
         "bodies", "bodies", "v_inf", "start", "stop", "num", "spacing", "target_altitude", "periapsis_altitude",
         "thrust", "thrust_to_weight", "plane_change", "specific_impulse", "arrival_mass", "apoapsis_fraction",
         "apoapsis_bound_of", "max_time_to_orbit", "v_inf_min", "v_inf_max", "apoapsis_altitude", "period", "steering",
-        "passes", "max_passes",
+        "passes", "max_passes", "ranking", "tie_tolerance",
         "gm", "mean_radius", "safe_periapsis_altitude", "parent", "semi_major_axis", "hohmann_from", "margin", "mars"]
 
 

@@ -85,18 +85,19 @@ class _BodyInputs:
 
 @dataclass(frozen=True)
 class _Engine:
-    """The spacecraft and how its burns are flown (the same for every chunk of a run)."""
+    """The spacecraft, how its burns are flown, how strategies are ranked (the same for every chunk of a run)."""
 
     exhaust_speed: float  # m/s
     mass: float  # kg on arrival
     steering: str
     passes: int | str
     max_passes: int
+    tie_tolerance: float = 0.0  # m/s
 
     @classmethod
     def of(cls, config: SweepConfig) -> _Engine:
         return cls(config.specific_impulse * STANDARD_GRAVITY, config.arrival_mass, config.steering,
-                   config.finite_passes, config.finite_max_passes)
+                   config.finite_passes, config.finite_max_passes, config.tie_tolerance)
 
 
 def _fly(strategy, body: _BodyInputs, geometry: Geometry, speed, thrust, engine: _Engine, approach=None,
@@ -192,7 +193,8 @@ def _run_chunk(body: _BodyInputs, speeds_km, thrust, engine: _Engine, strategies
         out["aimed_periapsis_altitude"][s].ravel()[ok] = (result.approach_periapsis - body.radius) / _KM
         out["finite_propellant_mass"][s].ravel()[ok] = mass * -np.expm1(-total / exhaust_speed)
         out["finite_time_to_orbit"][s].ravel()[ok] = np.where(flown, result.time, np.nan)
-    best, saving, _ = pick_best(out["finite_delta_v"], out["finite_propellant_mass"])
+    best, saving, _ = pick_best(out["finite_delta_v"], out["finite_propellant_mass"],
+                                tie_tolerance=engine.tie_tolerance)
     out["finite_best_strategy"][...], out["finite_saving_over_direct"][...] = best, saving
     return arrays
 

@@ -204,7 +204,8 @@ def _run_chunk(chunk: Chunk, plan: BodyPlan, config: SweepConfig, out: Arrays, b
         out["status"][index, b, speeds] = plan.status[index]
         for name, values in strategy.outputs(plan.geometry, body_radius).items():
             out[name][b, speeds] = np.where(infeasible, np.nan, values)
-    best, saving, propellant_saving = pick_best(out["delta_v"][:, b, speeds], out["propellant_mass"][:, b, speeds])
+    best, saving, propellant_saving = pick_best(out["delta_v"][:, b, speeds], out["propellant_mass"][:, b, speeds],
+                                                tie_tolerance=config.tie_tolerance)
     out["best_strategy"][b, speeds] = best
     out["saving_over_direct"][b, speeds] = saving
     out["propellant_saving"][b, speeds] = propellant_saving
@@ -233,7 +234,7 @@ def _plane_change_chunk(speed, plan: BodyPlan, config: SweepConfig, out: Arrays,
         delta_v[index] = np.where(feasible, total, np.nan)
         for name, values in turn.extras.items():
             out[name][b, speeds] = np.where(feasible, values, np.nan)
-    best, saving, _ = pick_best(delta_v, delta_v)
+    best, saving, _ = pick_best(delta_v, delta_v, tie_tolerance=config.tie_tolerance)
     out["plane_change_best_strategy"][b, speeds] = best
     out["plane_change_saving_over_direct"][b, speeds] = saving
 
