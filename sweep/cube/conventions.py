@@ -50,7 +50,7 @@ def flag_attrs(variable: Variable, names: list[str]) -> dict:
 
 def _attributes(variable: Variable, config: SweepConfig, names: list[str]) -> dict:
     if variable.flags is not None:
-        return flag_attrs(variable, names)
+        return {**flag_attrs(variable, names), **variable.attrs(config)}
     return _attrs(variable.units, variable.long_name, **variable.attrs(config))
 
 

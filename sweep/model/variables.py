@@ -186,7 +186,7 @@ _IMPULSIVE = (
     Variable("status", PER_POINT, "1", "feasibility of the strategy at the grid point", "impulsive", dtype="int8",
              flags="status"),
     Variable("best_strategy", DIMENSIONS, "1", "feasible strategy of least total delta-v", "impulsive", dtype="int8",
-             flags="best", attrs=lambda config: {"comment": _ties(config)}),
+             flags="best", attrs=lambda config: {"ranking": _ties(config)}),
     Variable("saving_over_direct", DIMENSIONS, "m s-1", "delta-v of direct minus delta-v of the best strategy",
              "impulsive"),
     Variable("propellant_saving", DIMENSIONS, "kg", "propellant of direct minus propellant of the best strategy",
@@ -265,7 +265,7 @@ _FINITE_VARIABLES = (
     Variable("finite_status", _FINITE, "1", "feasibility with finite burns", "finite", dtype="int8", flags="status",
              when="thrust"),
     Variable("finite_best_strategy", _FINITE[1:], "1", "feasible strategy of least total delta-v with finite burns",
-             "finite", dtype="int8", flags="best", when="thrust", attrs=lambda config: {"comment": _ties(config)}),
+             "finite", dtype="int8", flags="best", when="thrust", attrs=lambda config: {"ranking": _ties(config)}),
     Variable("finite_saving_over_direct", _FINITE[1:], "m s-1", "finite-burn delta-v of direct minus that of the "
              "best strategy", "finite", when="thrust", attrs=_finite_attrs()),
 )

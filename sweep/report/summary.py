@@ -443,8 +443,8 @@ def render_summary(dataset: xr.Dataset, tables: dict[str, pd.DataFrame] | None =
         f"Produced by {escape_markdown(dataset.attrs.get('source', 'capsweep'))}; "
         f"{escape_markdown(dataset.attrs.get('history', ''))}.",
         "",
-        *([f"Ties: {escape_markdown(dataset['best_strategy'].attrs['comment'])}.", ""]
-          if "comment" in dataset["best_strategy"].attrs else []),
+        *([f"Ties: {escape_markdown(dataset['best_strategy'].attrs['ranking'])}.", ""]
+          if "ranking" in dataset["best_strategy"].attrs else []),
         "Strategies: " + dataset.attrs.get("strategies", ""),
         "",
     ]
