@@ -139,7 +139,7 @@ class Crossover(_Model):
 class Ranking(_Model):
     """How strategies are ranked at a grid point."""
 
-    # m/s: strategies within this of the cheapest are tied, and the tie goes to the simpler one.
+    # m/s: a strategy wins over a simpler one only if cheaper by more than this; else a tie, the simpler wins.
     # 1 m/s is our choice (not a published value): below the finite-burn trims, navigation and
     # model differences a preliminary estimate carries, so a smaller saving is not a win.
     tie_tolerance: Annotated[float, Field(ge=0, le=1000)] = 1.0

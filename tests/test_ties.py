@@ -1,4 +1,4 @@
-"""Ties: strategies within ``[ranking] tie_tolerance`` of the cheapest are tied, the simpler wins.
+"""Ties: a strategy beats a simpler one only if cheaper by more than ``[ranking] tie_tolerance``.
 
 Rule (issue 14, common practice in trade studies: a difference below the model's accuracy is not
 a preference): a saving below the tolerance is not a win. The numbers here are test inputs.

@@ -279,25 +279,22 @@ def pick_best(totals: np.ndarray, propellant: np.ndarray, direct: int = DIRECT, 
     """
     The winning feasible strategy along axis 0, with its savings over ``direct``.
 
-    Strategies within ``tie_tolerance`` (m/s) of the cheapest are tied, and the tie goes to the
-    first of them in registry order: the registry lists strategies from the simplest (fewest
-    burns, then least time: direct, two_burn, three_burn). With a tolerance of zero that is the
-    cheapest (first on exact ties). So a saving of the winner over ``direct`` is either zero
-    (direct won) or more than the tolerance. Pairwise passes: several times faster than argmin
-    and take_along_axis over the short strategy axis. Returns (best index or -1, saving in
-    delta-v, saving in propellant).
+    Strategies are taken in registry order, from the simplest (fewest burns: direct, two_burn,
+    three_burn), and a strategy replaces the one holding the lead only if it is cheaper by more
+    than ``tie_tolerance`` (m/s): within it the two are tied and the simpler keeps the lead. So
+    every win is a saving of more than the tolerance over each strategy it displaced (over
+    direct, where direct is feasible), and the winner costs at most the tolerance more than the
+    cheapest. With a tolerance of zero the winner is the cheapest, first on exact ties.
+    Pairwise passes: several times faster than argmin and take_along_axis over the short
+    strategy axis. Returns (best index or -1, saving in delta-v, saving in propellant).
     """
-    cheapest = np.where(np.isnan(totals[0]), np.inf, totals[0])
+    best = np.zeros(totals.shape[1:], dtype=np.int8)
+    best_dv = np.where(np.isnan(totals[0]), np.inf, totals[0])
+    best_propellant = propellant[0].copy()
     for index in range(1, totals.shape[0]):
-        np.fmin(cheapest, totals[index], out=cheapest)
-    allowed = cheapest + tie_tolerance
-    best = np.full(totals.shape[1:], NO_STRATEGY, dtype=np.int8)
-    best_dv = np.full(totals.shape[1:], np.inf)
-    best_propellant = np.full(totals.shape[1:], np.nan)
-    for index in range(totals.shape[0]):
-        take = (best == NO_STRATEGY) & (totals[index] <= allowed)
-        best[take] = index
-        np.copyto(best_dv, totals[index], where=take)
-        np.copyto(best_propellant, propellant[index], where=take)
-    best[np.isinf(cheapest)] = NO_STRATEGY
+        better = totals[index] < best_dv - tie_tolerance
+        best[better] = index
+        np.copyto(best_dv, totals[index], where=better)
+        np.copyto(best_propellant, propellant[index], where=better)
+    best[np.isinf(best_dv)] = NO_STRATEGY
     return best, totals[direct] - best_dv, propellant[direct] - best_propellant

@@ -152,8 +152,8 @@ def finite_model(config) -> str:
 
 def _ties(config) -> str:
     """How ties are ranked (the config's [ranking] tie_tolerance)."""
-    return (f"strategies within {config.tie_tolerance:g} m/s of the cheapest are tied and the simpler one "
-            "(fewer burns) wins: a saving below that is not a win")
+    return (f"a strategy wins over a simpler one (fewer burns) only if it is cheaper by more than "
+            f"{config.tie_tolerance:g} m/s: within that they are tied and the simpler wins")
 
 
 def _finite_attrs(**extra: str) -> Callable[[Any], dict[str, Any]]:
